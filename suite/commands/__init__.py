@@ -1,0 +1,1 @@
+"""One module per ``lyapbench`` subcommand; each exposes ``register(subparsers)``."""

@@ -1,0 +1,38 @@
+"""Floor 2: the learner contract and the learners.
+
+A learner never imports ``suite``; the physics it may use arrives as a
+callable in :class:`Physics`.
+"""
+
+from __future__ import annotations
+
+import solvers  # noqa: F401  (configures JAX float64 before anything else)
+
+from .base import Capabilities, Learner
+from .data import PHYSICS_LEVELS, TASKS, Budget, BudgetClock, Physics, TrainingData, Trajectory
+from .errors import (
+    DivergedError,
+    InvalidDataError,
+    LearnerError,
+    NotApplicableError,
+    NotFittedError,
+    OverBudgetError,
+)
+
+__all__ = [
+    "PHYSICS_LEVELS",
+    "TASKS",
+    "Budget",
+    "BudgetClock",
+    "Capabilities",
+    "DivergedError",
+    "InvalidDataError",
+    "Learner",
+    "LearnerError",
+    "NotApplicableError",
+    "NotFittedError",
+    "OverBudgetError",
+    "Physics",
+    "TrainingData",
+    "Trajectory",
+]
