@@ -149,6 +149,9 @@ class Learner:
             raise NotApplicableError(f"{type(self).__name__} does not identify parameters")
         if self.capabilities.needs_hamiltonian and physics.hamiltonian is None and physics.to_canonical is None:
             raise NotApplicableError(f"{type(self).__name__} needs a system with canonical coordinates")
+        for tr in data.trajectories:  # arrays are mutable: re-check what validation saw
+            if not (np.all(np.isfinite(tr.t)) and np.all(np.isfinite(tr.y))):
+                raise InvalidDataError("training data contain NaN or infinite values")
         if data.n_samples < self.capabilities.min_samples:
             raise InvalidDataError(
                 f"{type(self).__name__} needs at least {self.capabilities.min_samples} samples, got {data.n_samples}")

@@ -1,0 +1,33 @@
+"""The one table of tiny-budget constructor arguments, for tests and ``check-learner``.
+
+These are *not* benchmark settings: they make a learner train in a fraction
+of a second on the conformance kit's small problems, so that the contract
+can be checked quickly. Benchmark budgets live with the grids.
+
+Each helper that adds a learner adds its entry here, keyed by the learner's
+registered name; a learner without an entry is checked with its defaults.
+Values must be plain Python (numbers, strings, tuples) so they can be
+printed and copied.
+"""
+
+from __future__ import annotations
+
+__all__ = ["TINY_PARAMS", "tiny_params"]
+
+TINY_PARAMS: dict[str, dict] = {
+    # baselines (numpy/scipy; already cheap at their defaults)
+    "persistence": {},
+    "spline": {},
+    "dmd": {"delays": 4, "rank": None},
+    "analog": {"delays": 3, "n_neighbors": 3},
+    # the plugin example (examples/lyapbench_plugin_example)
+    "local_linear": {"delays": 2, "n_neighbors": 12},
+    # Placeholders - the helpers writing these learners fill in their entries:
+    # "sindy": {...}, "esn": {...}, "ngrc": {...}, "pinn": {...},
+    # "mlp": {...}, "neural_ode": {...}, "hnn": {...},
+}
+
+
+def tiny_params(name: str) -> dict:
+    """A copy of the tiny-budget arguments for ``name`` (empty when it has none)."""
+    return dict(TINY_PARAMS.get(name, {}))
