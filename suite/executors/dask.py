@@ -1,0 +1,123 @@
+"""The Dask executor: the same cells on a Dask distributed cluster.
+
+Each cell becomes one Dask task that runs the cell exactly as the local
+executor does: in a fresh worker *subprocess* of the Dask worker (``python -m
+suite.executors._worker``), with one BLAS/XLA thread, the memory limit and
+the time budget enforced by killing that subprocess. A thread-with-timeout
+inside the Dask worker could not stop a hung learner; a subprocess can, and
+it keeps JAX state out of the long-lived Dask worker. The per-cell start-up
+cost is therefore the same as the local executor's, plus a Dask round trip
+(~10 ms).
+
+The executor uses an existing cluster (``scheduler="tcp://host:port"``) or
+starts ``LocalCluster(n_workers=N, threads_per_worker=1, processes=True,
+dashboard_address=None, host="127.0.0.1")`` for the run and closes it
+afterwards. The Dask workers must be able to import ``suite`` and the cell
+function (same installation everywhere). Results come back to the runner's
+process, the only one that writes the store.
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+
+from suite.cell import CellOutcome, CellSpec
+
+from .local import CellResult, CellTask, LocalExecutor, _now, function_path
+
+__all__ = ["DaskExecutor", "run_cell_task"]
+
+
+def run_cell_task(function: str, key: str, spec: dict, budget_seconds, memory_mb, retries: int,
+                  grace, sys_path: list) -> dict:
+    """Run one cell in a fresh subprocess of the calling (Dask worker) process.
+
+    Returns a JSON-ready dict (``outcome``, ``started``, ``finished``, ``attempts``).
+    """
+    from suite.executors._worker import outcome_to_dict
+
+    for p in sys_path:
+        if p not in sys.path and os.path.isdir(p):
+            sys.path.append(p)
+    ex = LocalExecutor(function=function, workers=1, cells_per_worker=1, retries=retries, grace=grace)
+    got = []
+    ex.run([CellTask(key, CellSpec(**spec), budget_seconds, memory_mb)], got.append)
+    r = got[0]
+    return {"outcome": outcome_to_dict(r.outcome), "started": r.started, "finished": r.finished,
+            "attempts": r.attempts}
+
+
+class DaskExecutor:
+    """Run cells on a Dask cluster (see the module docstring).
+
+    Parameters
+    ----------
+    function : str or callable
+        The cell function (``"module:callable"``), default ``suite.execute:run_cell``.
+    scheduler : str, optional
+        Address of an existing scheduler; without it a LocalCluster is started.
+    workers : int, optional
+        Workers of the LocalCluster (default: the number of CPUs).
+    retries : int
+        Extra attempts for a cell whose worker subprocess died.
+    grace : float, optional
+        Seconds past the budget before the subprocess is killed.
+    """
+
+    name = "dask"
+
+    def __init__(self, function="suite.execute:run_cell", scheduler: str | None = None,
+                 workers: int | None = None, retries: int = 1, grace: float | None = None):
+        self.function = function_path(function)
+        self.scheduler = scheduler
+        self.workers = max(1, int(workers or os.cpu_count() or 1))
+        self.retries = max(0, int(retries))
+        self.grace = grace
+
+    def _client(self):
+        from distributed import Client, LocalCluster
+
+        if self.scheduler:
+            try:
+                return Client(self.scheduler, timeout="20s"), None
+            except (OSError, TimeoutError) as exc:
+                raise ValueError(f"cannot reach the Dask scheduler at {self.scheduler!r} ({exc})") from None
+        cluster = LocalCluster(n_workers=self.workers, threads_per_worker=1, processes=True,
+                               dashboard_address=None, host="127.0.0.1")
+        return Client(cluster), cluster
+
+    def run(self, tasks, on_result) -> None:
+        """Submit every task; call ``on_result(CellResult)`` here as each completes."""
+        tasks = list(tasks)
+        if not tasks:
+            return
+        from distributed import as_completed
+
+        client, cluster = self._client()
+        try:
+            sys_path = [p for p in sys.path if p]
+            futures, submitted = {}, []
+            for t in tasks:
+                fut = client.submit(run_cell_task, self.function, t.key, t.spec.canonical(),
+                                    t.budget_seconds, t.memory_mb, self.retries, self.grace, sys_path,
+                                    key=f"lyapbench-cell-{t.key}", pure=False)
+                futures[fut.key] = t
+                submitted.append(fut)
+            from suite.executors._worker import outcome_from_dict
+            for fut in as_completed(submitted):
+                t = futures[fut.key]
+                try:
+                    d = fut.result()
+                    r = CellResult(t.key, t.spec, outcome_from_dict(d["outcome"]), d["started"],
+                                   d["finished"], d["attempts"])
+                except Exception as exc:  # the Dask task itself failed (worker lost, ...)
+                    r = CellResult(t.key, t.spec,
+                                   CellOutcome("failed", error=f"dask: {type(exc).__name__}: {exc}"),
+                                   None, _now(), 1)
+                on_result(r)
+        finally:
+            client.close()
+            if cluster is not None:
+                cluster.close()
+
