@@ -1,0 +1,51 @@
+"""Solvers on the learners' axes (suite/workprecision.py)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from suite.systems import get_system
+from suite.systems.reference import reference_solution
+from suite.workprecision import forecast_error, solver_ladder, speedup_at_equal_accuracy
+
+
+def test_forecast_error_hand_computed():
+    # one start, two times, two variables with scales (1, 2): errors (0,0) then (1, 2) -> nrmse 0 and 1
+    ref = np.zeros((1, 2, 2))
+    pred = np.array([[[0.0, 0.0], [1.0, 2.0]]])
+    assert forecast_error(pred, ref, [1.0, 2.0]) == pytest.approx(0.5)
+    assert forecast_error(pred * np.nan, ref, [1.0, 2.0]) == np.inf
+
+
+def test_speedup_hand_made_case():
+    ladder = pd.DataFrame({
+        "method": ["A", "A", "B"], "accuracy": [1e-3, 1e-6, 0.01], "error": [0.2, 0.01, 0.05],
+        "seconds_per_lyapunov_time": [1.0, 4.0, 2.0], "status": ["success"] * 3,
+    })
+    # learner error 0.06: cheapest rung with error <= 0.06 is B (2 s); learner inference 0.5 s -> 4x
+    r = speedup_at_equal_accuracy(ladder, 0.06, 0.5)
+    assert r["speedup"] == pytest.approx(4.0) and r["solver_method"] == "B"
+    # training 100 s amortised over 10 queries of 10 Lyapunov times: 0.5 + 100/10/10 = 1.5 s -> 2/1.5
+    r = speedup_at_equal_accuracy(ladder, 0.06, 0.5, train_seconds=100, n_queries=10, horizon_lyapunov_times=10)
+    assert r["speedup_with_training"] == pytest.approx(2.0 / 1.5)
+    # a learner worse than every rung is matched by the cheapest rung: A at 1e-3 (1 s) -> 2x
+    assert speedup_at_equal_accuracy(ladder, 0.5, 0.5)["speedup"] == pytest.approx(2.0)
+    # below 1 means "just run the solver"
+    assert speedup_at_equal_accuracy(ladder, 0.5, 10.0)["speedup"] < 1
+
+
+def test_ladder_error_falls_with_tolerance_on_lorenz63():
+    system = get_system("lorenz63")
+    starts = system.initial_conditions(2, seed=0)
+    t = np.arange(0, 201) * 0.01  # 2 time units, about 1.8 Lyapunov times
+    ref = np.stack([reference_solution(system, float(t[-1]), y0=y0, dt_out=0.01).y for y0 in starts])
+    scale = np.array([7.9, 9.0, 8.6])  # attractor standard deviations of Lorenz-63 (measured; order of magnitude)
+    df = solver_ladder(system, starts, t, ref, scale, methods=["DOP853", "rk4"],
+                       ladders={"adaptive": (1e-3, 1e-8), "fixed": (1.0, 0.1)})
+    assert set(df["method"]) == {"DOP853", "rk4"}
+    for _, g in df.groupby("method"):
+        errs = g.sort_values("accuracy")["error"].to_numpy()
+        assert errs[0] < errs[-1]  # tighter tolerance / smaller step => smaller error
+    assert (df["seconds_per_lyapunov_time"] > 0).all()
