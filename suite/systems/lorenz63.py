@@ -4,9 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from solvers import array_namespace
-
-from .base import PublishedValue, System, TermSwitch
+from .base import PublishedValue, System, TermSwitch, field_namespace, stack
 
 __all__ = ["Lorenz63"]
 
@@ -48,10 +46,10 @@ class Lorenz63(System):
         return np.array([1.0, 1.0, 1.0])
 
     def vector_field(self, t, y, p, without=()):
-        xp = array_namespace(y)
+        xp = field_namespace(y, p)
         keep = TermSwitch(without)
         x, yy, z = y[0], y[1], y[2]
         dx = keep("x_coupling") * p["sigma"] * (yy - x)
         dy = keep("y_forcing") * p["rho"] * x - keep("y_nonlinear") * x * z - keep("y_damping") * yy
         dz = keep("z_nonlinear") * x * yy - keep("z_damping") * p["beta"] * z
-        return xp.stack([dx, dy, dz])
+        return stack(xp, [dx, dy, dz])
