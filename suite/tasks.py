@@ -375,12 +375,16 @@ def _setup_climate(ctx: TaskContext) -> TaskSetup:
         lam_s = M.surrogate_largest_lyapunov(probe, truth[0], history, dt, scale=ctx.scale,
                                              chunk_steps=chunk, n_chunks=int(o["lyapunov_chunks"]),
                                              delta=float(o["lyapunov_delta"]))
-        rows.append(MetricRow("surrogate_lyapunov_exponent", lam_s))
-        if lam is not None and lam > 0:
-            rows.append(MetricRow("lyapunov_exponent_error", abs(lam_s - lam) / lam))
+        extra = {"system_lyapunov_exponent": lam}
+        if np.isfinite(lam_s):
+            rows.append(MetricRow("surrogate_lyapunov_exponent", lam_s))
+            if lam is not None and lam > 0:
+                rows.append(MetricRow("lyapunov_exponent_error", abs(lam_s - lam) / lam))
+        else:  # the perturbation vanished exactly: a contracting model with no finite exponent
+            extra["surrogate_lyapunov_note"] = "perturbation collapsed to zero; exponent -inf, no row"
         rows += _conserved_rows(system, pred[None])
         cost = {"inference_seconds": sec, "inference_seconds_per_lyapunov_time": sec / ((n - 1) * dt / tu)}
-        return rows, cost, {"system_lyapunov_exponent": lam}
+        return rows, cost, extra
 
     return TaskSetup(data, info, evaluate)
 
