@@ -6,7 +6,8 @@ on their path: the workers inherit the parent's ``sys.path``).
 ``standin_run_cell`` is a real, small cell function: it integrates the named
 system with scipy, keeps a ``fraction`` of the samples with Gaussian noise,
 fits the learner to them and scores its reconstruction at held-out times.
-It lets the runner be tested without depending on ``suite.execute``.
+It lets the runner be tested without depending on ``suite.execute``. Its
+imports sit at module level, so that they happen before a cell's clock starts.
 """
 
 from __future__ import annotations
@@ -16,8 +17,12 @@ import signal
 import time
 
 import numpy as np
+from scipy.integrate import solve_ivp
 
-from surrogates import Capabilities, Learner
+from suite.cell import CellOutcome, MetricRow
+from suite.systems import get_system
+from surrogates import Capabilities, Learner, LearnerError, Physics, TrainingData
+from surrogates.registry import make_learner
 
 _RECONSTRUCT = Capabilities(tasks=frozenset({"reconstruct"}))
 
@@ -95,13 +100,6 @@ class SelfKillingLearner(PolynomialInTime):
 
 def standin_run_cell(spec):
     """A cell function ``CellSpec -> CellOutcome`` for the tests (see the module docstring)."""
-    from scipy.integrate import solve_ivp
-
-    from suite.cell import CellOutcome, MetricRow
-    from suite.systems import get_system
-    from surrogates import LearnerError, Physics, TrainingData
-    from surrogates.registry import make_learner
-
     learner = make_learner(spec.learner, **spec.learner_params)
     if spec.task not in learner.capabilities.tasks:
         return CellOutcome("not_applicable", error=f"{spec.learner} does not do task {spec.task}")
@@ -133,4 +131,6 @@ def standin_run_cell(spec):
     curve = [MetricRow("relative_l2_error", float(np.linalg.norm(pred[m] - y[held][m]) / np.linalg.norm(y[held][m])), h)
              for h, m in ((1.0, half), (2.0, np.ones_like(half)))]
     return CellOutcome("ok", metrics=[MetricRow("relative_l2_error", err)] + curve,
-                       cost={"train_seconds": train_seconds, "n_parameters": learner.n_parameters()})
+                       cost={"train_seconds": train_seconds, "n_parameters": learner.n_parameters()},
+                       info={"OPENBLAS_NUM_THREADS": os.environ.get("OPENBLAS_NUM_THREADS"),
+                             "XLA_FLAGS": os.environ.get("XLA_FLAGS")})
