@@ -95,18 +95,17 @@ systems = ["lorenz63"]
 tasks = ["reconstruct"]
 learners = ["{M}:PolynomialInTime"]
 fractions = [1.0, 0.3]
-noise = [0.0, 0.02]
+noise = [0.02]
 seeds = [3]
 [learner."{M}:PolynomialInTime"]
 degree = 7
 """)
     local, dask = tmp_path / "local.sqlite", tmp_path / "dask.sqlite"
-    run_grid(grid, local, function=CELL, executor="local", workers=2, progress=False)
+    run_grid(grid, local, function=CELL, executor="local", workers=1, cells_per_worker=2, progress=False)
     run_grid(grid, dask, function=CELL, executor="dask", workers=2, progress=False)
     a, b = _accuracy(local), _accuracy(dask)
-    assert len(a) == 4 * 3 and set(a["status"]) == {"ok"}
+    assert len(a) == 2 * 3 and set(a["status"]) == {"ok"}
     assert a.equals(b)  # bitwise-equal figures: same key, same seed, same computation
-    # noisier or sparser data must not make the reconstruction better here (sanity of the stand-in)
     with Store.open(local, readonly=True) as st:
         infos = [c["info"] for c in st.cells()]
         manifest = st.manifests()[0]
@@ -129,7 +128,7 @@ def test_resume_after_sigkill_has_every_cell_exactly_once(tmp_path):
 systems = ["lorenz63"]
 tasks = ["reconstruct"]
 learners = ["{M}:PolynomialInTime"]
-seeds = [0, 1, 2, 3, 4]
+seeds = [0, 1, 2, 3]
 """)
     store = tmp_path / "s.sqlite"
     env = dict(os.environ, PYTHONPATH=os.pathsep.join([str(REPO), str(REPO / "tests")]))
@@ -146,11 +145,11 @@ seeds = [0, 1, 2, 3, 4]
                 con.close()
             except sqlite3.OperationalError:
                 done = 0
-            if done >= 2:
+            if done >= 1:
                 break
         time.sleep(0.2)
     assert proc.poll() is None, proc.communicate()
-    assert done >= 2
+    assert done >= 1
     children = psutil.Process(proc.pid).children(recursive=True)
     proc.send_signal(signal.SIGKILL)
     proc.wait()
@@ -163,15 +162,15 @@ seeds = [0, 1, 2, 3, 4]
     with Store.open(store, readonly=True) as st:
         cells = st.cells()
         keys = [c["key"] for c in cells]
-        assert len(keys) == len(set(keys)) == 5
-        assert {c["seed"] for c in cells} == {0, 1, 2, 3, 4}
+        assert len(keys) == len(set(keys)) == 4
+        assert {c["seed"] for c in cells} == {0, 1, 2, 3}
         assert {c["status"] for c in cells} == {"ok"}
         metrics = st.metrics()
-        assert len(metrics) == 5 * 3 and len(set((c, m, h) for c, m, h, _ in metrics)) == 5 * 3
+        assert len(metrics) == 4 * 3 and len(set((c, m, h) for c, m, h, _ in metrics)) == 4 * 3
         assert len(st.manifests()) == 2
     import json
     summary = json.loads(out.stdout)
-    assert summary["skipped"] >= 2 and summary["ran"] == 5 - summary["skipped"]
+    assert summary["skipped"] >= 1 and summary["ran"] == 4 - summary["skipped"]
 
 
 def test_run_refuses_a_locked_store(tmp_path, capsys):
