@@ -103,7 +103,7 @@ def _solve_one(f, y0, t_eval, params, rtol, atol, max_steps, first_step):
 
         def write_cond(w):
             idx, _ = w
-            return (idx < n_out) & (direction * (t_eval[jnp.minimum(idx, n_out - 1)] - t_new) <= 0.0)
+            return accept & (idx < n_out) & (direction * (t_eval[jnp.minimum(idx, n_out - 1)] - t_new) <= 0.0)
 
         def write(w):
             idx, o = w
@@ -113,9 +113,7 @@ def _solve_one(f, y0, t_eval, params, rtol, atol, max_steps, first_step):
             yi = jnp.where(t_eval[idx] == t_new, y_new, yi)
             return idx + 1, o.at[idx].set(yi)
 
-        idx_new, out_new = lax.cond(
-            accept, lambda: lax.while_loop(write_cond, write, (s["idx"], s["out"])),
-            lambda: (s["idx"], s["out"]))
+        idx_new, out_new = lax.while_loop(write_cond, write, (s["idx"], s["out"]))
         finite = jnp.all(jnp.isfinite(y_new))
         n_steps = s["n_steps"] + accept.astype(jnp.int64)
         n_rej = s["n_rejected"] + (~accept).astype(jnp.int64)
