@@ -13,7 +13,7 @@ import jax.numpy as jnp
 import numpy as np
 from jax import lax
 
-from solvers.fixed_step import rk_scan, rk_step  # TODO: from solvers once re-exported
+from solvers import rk_scan, rk_step
 
 from ._nets import apply_mlp, count_params, init_mlp
 from ._chunked_training import cached, count_trace, make_chunk, run_chunks
@@ -22,10 +22,17 @@ from .errors import DivergedError, InvalidDataError
 
 __all__ = ["NeuralODE"]
 
+_TRACE_ERRORS = (
+    jax.errors.ConcretizationTypeError,
+    jax.errors.TracerIntegerConversionError,
+    jax.errors.TracerBoolConversionError,
+    jax.errors.TracerArrayConversionError,
+)
+
 def _make_field(cfg):
     """The model's vector field ``f(t, y, (theta, aux))`` for a static config."""
     activation, time_input, known, phys_items = cfg["activation"], cfg["time_input"], cfg["known"], cfg["phys"]
-    phys_params = dict(phys_items)
+    phys_static = dict(phys_items) if phys_items is not None else None
 
     def field(t, y, model):
         theta, aux = model
@@ -35,7 +42,8 @@ def _make_field(cfg):
         net = apply_mlp(theta, x, activation)
         if known is None:
             return aux["out_scale"] * net
-        return jnp.asarray(known(t, y, phys_params)) + aux["out_scale"] * net
+        phys = aux["phys"] if phys_static is None else phys_static
+        return jnp.asarray(known(t, y, phys)) + aux["out_scale"] * net
 
     return field
 
@@ -240,12 +248,11 @@ class NeuralODE(Learner):
             resid = (derivs - f_known).std(axis=0)
             floor = 1e-3 * np.maximum(derivs.std(axis=0), 1e-12)
             out_scale = np.maximum(resid, floor)
+        # physics parameters are traced (new values do not recompile) unless the
+        # field needs them as Python numbers; then they are baked in (and keyed)
         cfg = {"activation": self.activation, "time_input": bool(self.time_input), "known": known,
-               "phys": phys_items, "substeps": int(self.substeps), "batch_size": int(self.batch_size),
+               "phys": None, "substeps": int(self.substeps), "batch_size": int(self.batch_size),
                "grad_clip": float(self.grad_clip)}
-        key_cfg = tuple(sorted((kk, v) for kk, v in cfg.items()))
-        chunk, tx = cached(("neural_ode.train",) + key_cfg, lambda: make_chunk(
-            _window_loss(cfg), cfg["batch_size"], cfg["grad_clip"], "neural_ode.train"))
 
         key = jax.random.PRNGKey(seed)
         key, k_init = jax.random.split(key)
@@ -254,9 +261,23 @@ class NeuralODE(Learner):
         if known is not None:  # start from the known physics: zero correction
             theta[-1] = {"w": jnp.zeros_like(theta[-1]["w"]), "b": jnp.zeros_like(theta[-1]["b"])}
         aux = {"mu": jnp.asarray(mu), "s": jnp.asarray(s), "out_scale": jnp.asarray(out_scale),
-               "t_mu": jnp.asarray(t_mu), "t_s": jnp.asarray(t_s)}
-        theta, done, history = run_chunks(chunk, tx, theta, key, aux, windows, clock.iterations(self.n_iterations),
-                                          self.learning_rate, self.chunk_size, clock, "NeuralODE")
+               "t_mu": jnp.asarray(t_mu), "t_s": jnp.asarray(t_s),
+               "phys": {kk: jnp.asarray(v) for kk, v in phys_items}}
+        total = clock.iterations(self.n_iterations)
+
+        def train(cfg):
+            key_cfg = tuple(sorted(cfg.items()))
+            chunk, tx = cached(("neural_ode.train",) + key_cfg, lambda: make_chunk(
+                _window_loss(cfg), cfg["batch_size"], cfg["grad_clip"], "neural_ode.train"))
+            return run_chunks(chunk, tx, theta, key, aux, windows, total, self.learning_rate, self.chunk_size,
+                              clock, "NeuralODE")
+
+        try:
+            theta, done, history = train(cfg)
+        except _TRACE_ERRORS:
+            cfg["phys"] = phys_items
+            aux["phys"] = {}
+            theta, done, history = train(cfg)
         self.cfg_ = cfg
         self.theta_ = theta
         self.aux_ = aux
