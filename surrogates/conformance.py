@@ -862,7 +862,7 @@ def check_learner(learner_or_name, *, params=None) -> list[CheckResult]:
         try:
             check()
         except CheckSkipped as exc:
-            results.append(CheckResult(name, True, f"skipped: {_one_line(exc)}", skipped=True))
+            results.append(CheckResult(name, True, _one_line(exc), skipped=True))
         except CheckFailed as exc:
             results.append(CheckResult(name, False, _one_line(exc)))
         except Exception as exc:  # an unexpected error is a failure with its one-line reason
