@@ -8,7 +8,7 @@ import numpy as np
 from jax import lax
 
 from ._compile import run_compiled
-from .fixed_step import _n_saved
+from .fixed_step import _n_saved, strided_loop
 from .result import Solution
 
 __all__ = ["etdrk4", "etdrk4_coefficients", "make_etdrk4_step"]
@@ -145,7 +145,7 @@ def etdrk4(linear, nonlinear, u0_hat, dt, n_steps, params, *, save_every: int = 
     batched = u0.ndim == 2
     coef = tuple(co[k] for k in ("E", "E2", "Q", "f1", "f2", "f3"))
 
-    def fn(prm, u, coef_):
+    def fn(prm, u, coef_, stride):
         E, E2, Q, f1, f2, f3 = coef_
 
         def step(v):
@@ -159,19 +159,12 @@ def etdrk4(linear, nonlinear, u0_hat, dt, n_steps, params, *, save_every: int = 
             return E * v + Nv * f1 + 2.0 * (Na + Nb) * f2 + Nc * f3
 
         def one(v0):
-            def outer(v, _):
-                v, _ = lax.scan(lambda w, __: (step(w), None), v, None, length=save_every)
-                return v, v
-
-            if n_out == 1:
-                return v0[None]
-            _, vs = lax.scan(outer, v0, None, length=n_out - 1)
-            return jnp.concatenate([v0[None], vs])
+            return strided_loop(lambda k, v: step(v), v0, n_out, stride)
 
         return jax.vmap(one)(u) if batched else one(u)
 
-    key = ("etdrk4", nonlinear, n_steps, save_every, batched)
-    ys, compile_s, seconds = run_compiled(key, fn, params, (u0, coef))
+    key = ("etdrk4", nonlinear, n_out, batched)
+    ys, compile_s, seconds = run_compiled(key, fn, params, (u0, coef, np.int64(save_every)))
     ys = np.asarray(ys)
     ok = bool(np.isfinite(ys).all())
     t = dt * save_every * np.arange(n_out)

@@ -13,7 +13,7 @@ from ._compile import run_compiled
 from .result import Solution
 from .tableau import RK4, ButcherTableau
 
-__all__ = ["integrate_fixed", "rk_scan", "rk_step"]
+__all__ = ["integrate_fixed", "rk_scan", "rk_step", "strided_loop"]
 
 
 def rk_step(f, t, y, dt, params, tableau: ButcherTableau = RK4):
@@ -95,31 +95,51 @@ def rk_scan(f, y0, t0, dt, n_steps, params, *, tableau: ButcherTableau = RK4, sa
         Times are computed from the step index (no accumulated round-off).
     """
     n_out = _n_saved(n_steps, save_every)
-    save_every = int(save_every)
     y0 = jnp.asarray(y0)
 
-    def inner(carry, i):
-        y, k0 = carry
-        t = t0 + (k0 + i) * dt
-        return (rk_step(f, t, y, dt, params, tableau), k0), None
+    def advance(k, y):
+        return rk_step(f, t0 + k * dt, y, dt, params, tableau)
 
-    def outer(y, k):
-        (y, _), _ = lax.scan(inner, (y, k * save_every), jnp.arange(save_every))
-        return y, y
+    return strided_loop(advance, y0, n_out, int(save_every))
 
+
+def strided_loop(advance, y0, n_out: int, stride):
+    """Apply ``y = advance(k, y)`` for k = 0, 1, ... and keep every ``stride``-th state.
+
+    ``n_out`` (static) is the number of kept states including ``y0``;
+    ``stride`` may be traced (a ``fori_loop`` with dynamic bounds inside a
+    ``scan``), so the compiled loop depends only on ``n_out``; that form is
+    forward-differentiable only. A Python-int ``stride`` gives nested scans,
+    which ``jax.grad`` can go through (what :func:`rk_scan` uses). ``y0`` may be
+    any pytree; the result stacks it along a new leading axis.
+    """
+
+    if isinstance(stride, (int, np.integer)):
+        # static stride: an inner scan, which reverse-mode autodiff can go through
+        stride = int(stride)
+
+        def outer(y, j):
+            y, _ = lax.scan(lambda c, i: (advance(j * stride + i, c), None), y, jnp.arange(stride))
+            return y, y
+    else:
+        def outer(y, j):
+            y = lax.fori_loop(j * stride, (j + 1) * stride, advance, y)
+            return y, y
+
+    first = jax.tree_util.tree_map(lambda a: jnp.asarray(a)[None], y0)
     if n_out == 1:
-        return y0[None]
+        return first
     _, ys = lax.scan(outer, y0, jnp.arange(n_out - 1))
-    return jnp.concatenate([y0[None], ys], axis=0)
+    return jax.tree_util.tree_map(lambda a, b: jnp.concatenate([a, b], axis=0), first, ys)
 
 
 def integrate_fixed(f, y0, t0, dt, n_steps, params, *, tableau: ButcherTableau = RK4,
                     save_every: int = 1) -> Solution:
     """Fixed-step Runge–Kutta integration of one trajectory or a batch.
 
-    Compiled once and cached per (f, tableau, shapes, n_steps, save_every);
-    ``t0``, ``dt`` and parameter values are traced, so changing them does not
-    recompile. Compilation time is reported in ``compile_seconds``, apart
+    Compiled once and cached per (f, tableau, shapes, number of saved
+    states); ``t0``, ``dt``, ``save_every`` and parameter values are traced,
+    so changing them does not recompile. Compilation time is reported in ``compile_seconds``, apart
     from ``seconds``.
 
     Parameters
@@ -161,12 +181,15 @@ def integrate_fixed(f, y0, t0, dt, n_steps, params, *, tableau: ButcherTableau =
     n_steps, save_every = int(n_steps), int(save_every)
     batched = y0.ndim == 2
 
-    def fn(p, y0_, t0_, dt_):
-        one = lambda y: rk_scan(f, y, t0_, dt_, n_steps, p, tableau=tableau, save_every=save_every)
+    def fn(p, y0_, t0_, dt_, stride):
+        def one(y):
+            return strided_loop(lambda k, z: rk_step(f, t0_ + k * dt_, z, dt_, p, tableau), y, n_out, stride)
+
         return jax.vmap(one)(y0_) if batched else one(y0_)
 
-    key = ("integrate_fixed", f, tableau, n_steps, save_every, batched)
-    ys, compile_s, seconds = run_compiled(key, fn, params, (y0, np.float64(t0), np.float64(dt)))
+    key = ("integrate_fixed", f, tableau, n_out, batched)
+    ys, compile_s, seconds = run_compiled(key, fn, params, (y0, np.float64(t0), np.float64(dt),
+                                                            np.int64(save_every)))
     ys = np.asarray(ys)
     t = float(t0) + dt * save_every * np.arange(n_out)
     status, message = "success", ""

@@ -10,7 +10,7 @@ import numpy as np
 from jax import lax
 
 from ._compile import run_compiled
-from .fixed_step import _n_saved
+from .fixed_step import _n_saved, strided_loop
 from .result import Solution
 
 __all__ = [
@@ -199,27 +199,17 @@ def integrate_separable(kinetic, potential, q0, p0, dt, n_steps, params, *, orde
     step = verlet_step if order == 2 else yoshida4_step
     batched = q0.ndim == 2
 
-    def one(q, p, dt_, prm):
-        def inner(c, _):
-            return step(kinetic, potential, c[0], c[1], dt_, prm), None
+    def one(q, p, dt_, prm, stride):
+        qs, ps = strided_loop(lambda k, c: step(kinetic, potential, c[0], c[1], dt_, prm), (q, p), n_out, stride)
+        return jnp.concatenate([qs, ps], axis=-1)
 
-        def outer(c, _):
-            c, _ = lax.scan(inner, c, None, length=save_every)
-            return c, jnp.concatenate(c)
-
-        z0 = jnp.concatenate([q, p])
-        if n_out == 1:
-            return z0[None]
-        _, zs = lax.scan(outer, (q, p), None, length=n_out - 1)
-        return jnp.concatenate([z0[None], zs])
-
-    def fn(prm, q, p, dt_):
+    def fn(prm, q, p, dt_, stride):
         if batched:
-            return jax.vmap(lambda a, b: one(a, b, dt_, prm))(q, p)
-        return one(q, p, dt_, prm)
+            return jax.vmap(lambda a, b: one(a, b, dt_, prm, stride))(q, p)
+        return one(q, p, dt_, prm, stride)
 
-    key = ("integrate_separable", kinetic, potential, order, n_steps, save_every, batched)
-    ys, compile_s, seconds = run_compiled(key, fn, params, (q0, p0, np.float64(dt)))
+    key = ("integrate_separable", kinetic, potential, order, n_out, batched)
+    ys, compile_s, seconds = run_compiled(key, fn, params, (q0, p0, np.float64(dt), np.int64(save_every)))
     ys = np.asarray(ys)
     t = float(dt) * save_every * np.arange(n_out)
     ok = bool(np.isfinite(ys).all())
@@ -267,29 +257,22 @@ def integrate_hamiltonian(hamiltonian, z0, dt, n_steps, params, *, save_every: i
     n_steps, save_every = int(n_steps), int(save_every)
     batched = z0.ndim == 2
 
-    def one(z, dt_, prm):
-        def inner(c, _):
+    def one(z, dt_, prm, stride):
+        def advance(k, c):
             zc, it_max, ok = c
             zn, it, conv = _implicit_midpoint(hamiltonian, zc, dt_, prm, tol, max_iter, None)
-            return (zn, jnp.maximum(it_max, it), ok & conv), None
+            return zn, jnp.maximum(it_max, it), ok & conv
 
-        def outer(c, _):
-            c, _ = lax.scan(inner, c, None, length=save_every)
-            return c, c[0]
+        zs, its, oks = strided_loop(advance, (z, jnp.asarray(0), jnp.asarray(True)), n_out, stride)
+        return zs, its[-1], oks[-1]
 
-        c0 = (z, jnp.asarray(0), jnp.asarray(True))
-        if n_out == 1:
-            return z[None], c0[1], c0[2]
-        (_, it_max, ok), zs = lax.scan(outer, c0, None, length=n_out - 1)
-        return jnp.concatenate([z[None], zs]), it_max, ok
-
-    def fn(prm, z, dt_):
+    def fn(prm, z, dt_, stride):
         if batched:
-            return jax.vmap(lambda a: one(a, dt_, prm))(z)
-        return one(z, dt_, prm)
+            return jax.vmap(lambda a: one(a, dt_, prm, stride))(z)
+        return one(z, dt_, prm, stride)
 
-    key = ("integrate_hamiltonian", hamiltonian, n_steps, save_every, batched, tol, max_iter)
-    (ys, it_max, ok), compile_s, seconds = run_compiled(key, fn, params, (z0, np.float64(dt)))
+    key = ("integrate_hamiltonian", hamiltonian, n_out, batched, tol, max_iter)
+    (ys, it_max, ok), compile_s, seconds = run_compiled(key, fn, params, (z0, np.float64(dt), np.int64(save_every)))
     ys = np.asarray(ys)
     it_max = int(np.max(it_max))
     ok = bool(np.all(ok))
