@@ -86,14 +86,14 @@ def _peak_memory_mb() -> float:
     return rss / (1024.0 * 1024.0) if sys.platform == "darwin" else rss / 1024.0
 
 
-def check_applicable(caps, system, task: str, physics: str, fraction: float) -> str | None:
+def check_applicable(caps, system, task: str, physics: str) -> str | None:
     """The reason a learner with capabilities ``caps`` cannot run this cell, or None."""
+    if task == "identify" and physics == "none":
+        return "task identify needs the equations: physics level full or partial"
     if task not in caps.tasks:
         return f"the learner does not do task {task} (it does: {', '.join(sorted(caps.tasks)) or 'nothing'})"
     if physics not in caps.physics:
         return f"the learner cannot use physics level {physics} (it uses: {', '.join(sorted(caps.physics))})"
-    if task == "identify" and physics == "none":
-        return "task identify needs the equations: physics level full or partial"
     if physics == "partial" and not system.terms:
         return f"{system.name} has no removable term for physics level partial"
     if caps.needs_hamiltonian and system.hamiltonian_form is None:
@@ -130,7 +130,7 @@ def _run(spec: CellSpec, info: dict, cost: dict):
     caps = cls.capabilities
     info.update(time_unit=float(system.time_unit), time_unit_kind=time_unit_kind(system),
                 task_options=options)
-    reason = check_applicable(caps, system, spec.task, spec.physics, spec.fraction)
+    reason = check_applicable(caps, system, spec.task, spec.physics)
     if reason:
         return "not_applicable", [], reason
     physics, pinfo = build_physics(system, spec.physics, spec.task, options)
