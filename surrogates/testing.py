@@ -21,10 +21,18 @@ TINY_PARAMS: dict[str, dict] = {
     "dmd": {"delays": 4, "rank": None},
     "analog": {"delays": 3, "n_neighbors": 3},
     # the plugin example (examples/lyapbench_plugin_example)
-    "local_linear": {"delays": 2, "n_neighbors": 12},
+    "local_linear": {"delays": 2, "n_neighbors": 20},
+    # classical learners (numpy/scipy)
+    "sindy": {"max_iter": 5},
+    "esn": {"n_nodes": 60, "washout": 20},
+    "ngrc": {},
+    # time-to-state networks (JAX); no L-BFGS phase: its compile alone takes seconds
+    "pinn": {"width": 8, "depth": 2, "n_collocation": 64, "causal_chunks": 8, "adam_steps": 60,
+             "lbfgs_steps": 0, "chunk_size": 30, "holdout_fraction": 0.0},
+    "mlp": {"width": 8, "depth": 2, "adam_steps": 60, "lbfgs_steps": 0, "chunk_size": 30,
+            "holdout_fraction": 0.0},
     # Placeholders - the helpers writing these learners fill in their entries:
-    # "sindy": {...}, "esn": {...}, "ngrc": {...}, "pinn": {...},
-    # "mlp": {...}, "neural_ode": {...}, "hnn": {...},
+    # "neural_ode": {...}, "hnn": {...},
 }
 
 
