@@ -185,6 +185,15 @@ def _task_registry():
     return tuple(TASKS), dict(TASK_OPTION_DEFAULTS)
 
 
+def _resolve_option(task: str, name: str, value):
+    """The task module's own check and normalisation of one option value."""
+    try:
+        from suite.tasks import resolve_task_options
+    except ImportError:
+        return value
+    return resolve_task_options(task, {name: value})[name]
+
+
 def _same_kind(default, value) -> bool:
     if default is None:
         return True
@@ -325,6 +334,10 @@ def parse_grid(text: str, label: str = "<grid>", name: str = "grid") -> Grid:
             if not _same_kind(defaults[o], v):
                 c.fail(f"{key}.{o}", f"expected {_tname(defaults[o])} like the default "
                                     f"{defaults[o]!r}, got {v!r}")
+            try:
+                opts[o] = _resolve_option(tn, o, v)
+            except ValueError as exc:
+                c.fail(f"{key}.{o}", str(exc))
         task_options[tn] = dict(opts)
 
     sha = hashlib.sha256(text.encode()).hexdigest()

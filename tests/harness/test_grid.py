@@ -123,16 +123,19 @@ def test_bad_grid_is_one_line_naming_file_and_key(tmp_path, text, key, word):
     assert word in msg, msg
 
 
-def test_task_option_type_is_checked(tmp_path, monkeypatch):
-    import suite.grid as grid_module
-    monkeypatch.setattr(grid_module, "_task_registry",
-                        lambda: (("forecast",), {"forecast": {"n_starts": 8, "threshold": 0.4}}))
-    ok = parse_grid(_grid(tail="[task.forecast]\nn_starts = 4\nthreshold = 0.5\n"))
-    assert ok.cells()[0].task_options == {"n_starts": 4, "threshold": 0.5}
+def test_task_options_are_checked_against_the_task_table():
+    from suite.tasks import TASK_OPTION_DEFAULTS
+    assert {"n_starts", "vpt_threshold"} <= set(TASK_OPTION_DEFAULTS["forecast"])
+    ok = parse_grid(_grid(tail="[task.forecast]\nn_starts = 4\nvpt_threshold = 0.5\n"))
+    assert ok.cells()[0].task_options == {"n_starts": 4, "vpt_threshold": 0.5}
     with pytest.raises(GridError, match=r"task\.forecast\.n_starts: expected an integer"):
         parse_grid(_grid(tail='[task.forecast]\nn_starts = "four"\n'))
     with pytest.raises(GridError, match=r"task\.forecast\.n_starts"):
         parse_grid(_grid(tail="[task.forecast]\nn_starts = 2.5\n"))
+    with pytest.raises(GridError, match=r"task\.forecast\.n_starts"):
+        parse_grid(_grid(tail="[task.forecast]\nn_starts = 0\n"))
+    with pytest.raises(GridError, match=r"task\.reconstruct: task 'reconstruct' is not in grid\.tasks"):
+        parse_grid(_grid(tail="[task.reconstruct]\nwindow_lyapunov_times = 3.0\n"))
 
 
 @pytest.mark.parametrize("text", [BAD[3][1], BAD[7][1], BAD[12][1], BAD[15][1]],
