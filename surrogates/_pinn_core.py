@@ -37,6 +37,7 @@ functions in low dimensional domains", NeurIPS (2020).
 
 from __future__ import annotations
 
+import functools
 import math
 from collections import Counter, OrderedDict
 from typing import NamedTuple
@@ -80,7 +81,30 @@ class _Config(NamedTuple):
     lr_decay_steps: int
     lbfgs_memory: int
     chunk_size: int
-    vector_field: object      # the physics callable (by identity), or None
+    vector_field_key: object  # identifies the physics callable (see _callable_key), or None
+
+
+def _callable_key(f):
+    """A hashable key under which two calls of ``_compiled`` may share code.
+
+    Equal for equal ``functools.partial`` wrappers of one function and for
+    closures with the same code and the same (hashable) captured objects —
+    the harness and the conformance kit build such wrappers afresh for every
+    fit. Anything else is keyed by identity.
+    """
+    if f is None:
+        return None
+    try:
+        if isinstance(f, functools.partial):
+            key = ("partial", _callable_key(f.func), f.args, tuple(sorted(f.keywords.items())))
+        elif getattr(f, "__closure__", None) and hasattr(f, "__code__"):
+            key = ("closure", f.__code__, tuple(c.cell_contents for c in f.__closure__))
+        else:
+            return f
+        hash(key)
+        return key
+    except (TypeError, ValueError):
+        return f
 
 
 # ---------------------------------------------------------------- the network
@@ -125,7 +149,7 @@ def _data_loss(cfg, params, batch):
     return jnp.sum(w[:, None] * (pred - batch["data_y"]) ** 2) / (jnp.sum(w) * cfg.dim)
 
 
-def _residual_sq(cfg, params, batch):
+def _residual_sq(cfg, vector_field, params, batch):
     """Per collocation point: mean over variables of the squared scaled residual."""
     tau = batch["colloc_tau"]
     out, dout = _net_and_dtau(cfg, params["net"], tau)
@@ -133,12 +157,12 @@ def _residual_sq(cfg, params, batch):
     y = mean + scale * out
     dydt = scale * dout / half
     p = _physical_params(cfg, params["theta"], batch)
-    f = jax.vmap(lambda t, yy: cfg.vector_field(t, yy, p))(batch["colloc_t"], y)
+    f = jax.vmap(lambda t, yy: vector_field(t, yy, p))(batch["colloc_t"], y)
     return jnp.mean(((dydt - f) / scale) ** 2, axis=1)
 
 
-def _physics_loss(cfg, params, batch, causal):
-    r2 = _residual_sq(cfg, params, batch)
+def _physics_loss(cfg, vector_field, params, batch, causal):
+    r2 = _residual_sq(cfg, vector_field, params, batch)
     if not causal or cfg.causal_epsilon <= 0.0:
         return jnp.mean(r2)
     chunk_losses = jnp.mean(r2.reshape(cfg.causal_chunks, -1), axis=1)
@@ -147,9 +171,9 @@ def _physics_loss(cfg, params, batch, causal):
     return jnp.mean(w * chunk_losses)
 
 
-def _loss_terms(cfg, params, batch, causal=True):
+def _loss_terms(cfg, vector_field, params, batch, causal=True):
     ld = _data_loss(cfg, params, batch)
-    lr = _physics_loss(cfg, params, batch, causal) if cfg.use_physics else jnp.zeros_like(ld)
+    lr = _physics_loss(cfg, vector_field, params, batch, causal) if cfg.use_physics else jnp.zeros_like(ld)
     return ld, lr
 
 
@@ -158,8 +182,12 @@ def _tree_abs(tree):
 
 
 # -------------------------------------------------------- compiled functions
-def _compiled(cfg: _Config) -> dict:
-    """The jitted functions for ``cfg``, built once per configuration."""
+def _compiled(cfg: _Config, vector_field=None) -> dict:
+    """The jitted functions for ``cfg``, built once per configuration.
+
+    ``vector_field`` is only read when the entry is built; the key
+    ``cfg.vector_field_key`` stands for it.
+    """
     if cfg in _CACHE:
         _CACHE.move_to_end(cfg)
         return _CACHE[cfg]
@@ -171,7 +199,7 @@ def _compiled(cfg: _Config) -> dict:
         params, opt_state, w_phys, losses = carry
 
         def terms(pr):
-            return _loss_terms(cfg, pr, batch)
+            return _loss_terms(cfg, vector_field, pr, batch)
 
         (ld, lr), vjp = jax.vjp(terms, params)
         if cfg.use_physics and cfg.loss_balancing == "fixed":
@@ -208,7 +236,7 @@ def _compiled(cfg: _Config) -> dict:
         TRACE_COUNTS["lbfgs_chunk"] += 1
 
         def total(pr):
-            ld, lr = _loss_terms(cfg, pr, batch, causal=False)
+            ld, lr = _loss_terms(cfg, vector_field, pr, batch, causal=False)
             return ld + w_phys * lr
 
         value_and_grad = optax.value_and_grad_from_state(total)
@@ -297,7 +325,7 @@ class TimeNetworkLearner(Learner):
             lr_decay_steps=max(1, int(self._hp("lr_decay_steps"))),
             lbfgs_memory=int(self._hp("lbfgs_memory")),
             chunk_size=max(1, int(self._hp("chunk_size"))),
-            vector_field=physics.vector_field if use_phys else None)
+            vector_field_key=_callable_key(physics.vector_field) if use_phys else None)
 
     def _fit(self, data: TrainingData, physics: Physics, budget: Budget, seed: int) -> None:
         if len(data.trajectories) != 1:
@@ -306,8 +334,10 @@ class TimeNetworkLearner(Learner):
                 f"{len(data.trajectories)} trajectories")
         tr = data.trajectories[0]
         cfg = self._config(data.dim, physics)
-        fns = _compiled(cfg)
+        fns = _compiled(cfg, physics.vector_field)
         clock = budget.clock()
+        if not (np.all(np.isfinite(tr.t)) and np.all(np.isfinite(tr.y))):
+            raise InvalidDataError("training data contain NaN or infinite values")
 
         t0, t1 = float(tr.t[0]), float(tr.t[-1])
         if not t1 > t0:
@@ -438,6 +468,7 @@ class TimeNetworkLearner(Learner):
             raise DivergedError(f"{type(self).__name__}: training produced non-finite weights")
         self.params_ = final
         self.config_ = cfg
+        self.vector_field_ = physics.vector_field if cfg.use_physics else None
         self.unknown_ = unknown
         self.positive_ = positive
         self.loss_history_ = np.concatenate(history) if history else np.zeros((0, 3))
@@ -457,7 +488,7 @@ class TimeNetworkLearner(Learner):
 
     def _evaluate(self, t):
         t = np.asarray(t, dtype=float).ravel()
-        fns = _compiled(self.config_)
+        fns = _compiled(self.config_, self.vector_field_)
         out = np.asarray(fns["evaluate"](self.params_, jnp.asarray(self._tau(t))))
         return self.mean_ + self.scale_ * out
 
@@ -474,6 +505,7 @@ class TimeNetworkLearner(Learner):
         t_star = grid[np.argmin(d2, axis=1)]
         rel = np.asarray(t, dtype=float) - float(t[0])
         out = np.stack([self._evaluate(ts + rel) for ts in t_star])
+        out[:, 0] = y0      # the state at t[0] is given; the network's own value there may differ
         if not np.all(np.isfinite(out)):
             raise DivergedError(f"{type(self).__name__}: non-finite rollout")
         return out
