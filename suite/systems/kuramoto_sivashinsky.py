@@ -56,7 +56,11 @@ class KuramotoSivashinsky(System):
         PublishedValue("largest_lyapunov_exponent", 0.043,
                        "Cvitanović, Davidchack & Siminos, SIAM J. Appl. Dyn. Syst. 9, 1 (2010), from memory"),
     )
-    measured_lyapunov_exponent = 0.043
+    # solvers.lyapunov_spectrum with the ETDRK4 step map (dt 0.05), transient
+    # 200, t_end 20000 from the default start: (0.0498, 0.0003); running
+    # estimates 0.0498, 0.0497, 0.0495, 0.0498 at a quarter, half, three
+    # quarters and all of the run.
+    measured_lyapunov_exponent = 0.0498
     reference_dt = 0.05  # ETDRK4 step of reference trajectories
 
     @property
@@ -156,6 +160,38 @@ class KuramotoSivashinsky(System):
         return Solution(t=sol.t, y=y, method=sol.method, nfev=sol.nfev, n_steps=sol.n_steps,
                                 seconds=sol.seconds, status=sol.status, message=sol.message,
                                 compile_seconds=sol.compile_seconds, extra=dict(sol.extra))
+
+    def lyapunov_step(self, dt: float | None = None, without=()):
+        """A jittable ETDRK4 one-step map ``step(t, u, dt, params)`` on grid values.
+
+        For :func:`solvers.lyapunov_spectrum` (its ``step`` argument): the
+        tangent dynamics are then propagated through the exponential
+        integrator, which is stable at steps where RK4 on the stiff field is
+        not. ``dt`` is fixed when the map is built (default
+        :attr:`reference_dt`); the ``dt`` argument of the map is ignored.
+        Cached per (dt, removed terms), so compiled code is reused.
+        """
+        from solvers import make_etdrk4_step
+
+        dt = float(self.reference_dt if dt is None else dt)
+        without = (without,) if isinstance(without, str) else tuple(without)
+        key = ("lyapunov_step", dt, frozenset(without), self.n, self.params["L"])
+        cache = self.__dict__.setdefault("_split_cache", {})
+        if key not in cache:
+            linear, nonlinear = self.semilinear_split(without)
+            spectral_step = make_etdrk4_step(linear, nonlinear, dt)
+            n = self.n
+
+            def step(t, u, dt_ignored, params):
+                xp = field_namespace(u, params)
+                return xp.fft.irfft(spectral_step(xp.fft.rfft(u), params), n=n)
+
+            cache[key] = step
+        return cache[key]
+
+    def lyapunov_options(self) -> dict:
+        """Settings for :func:`solvers.lyapunov_spectrum`: the ETDRK4 step map at ``reference_dt``."""
+        return {"dt": self.reference_dt, "step": self.lyapunov_step()}
 
     def initial_conditions(self, n, seed, spacing=None):
         """``n`` states on the attractor from ``seed`` (ETDRK4 instead of the stiff-unfriendly DOP853)."""

@@ -36,7 +36,9 @@ class Lorenz96(System):
         PublishedValue("largest_lyapunov_exponent", 1.68,
                        "Lorenz-96 literature value for N=40, F=8, from memory"),
     )
-    measured_lyapunov_exponent = 1.68
+    # solvers.lyapunov_spectrum, RK4 dt 0.01, transient 50, t_end 300, all 40
+    # exponents from the default start: 1.703 (sum -39.99997 = -N).
+    measured_lyapunov_exponent = 1.70
 
     @property
     def n(self) -> int:
