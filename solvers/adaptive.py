@@ -180,7 +180,9 @@ def dopri5(f, y0, t_eval, params, *, rtol: float = 1e-8, atol: float = 1e-10, ma
     Returns
     -------
     Solution
-        ``nfev`` and ``n_steps`` are per trajectory (maximum over a batch);
+        ``nfev`` (f at the start, one more for the starting-step estimate,
+        six per attempted step thanks to FSAL) and ``n_steps`` are per
+        trajectory (maximum over a batch);
         ``extra`` holds ``n_rejected``. When ``max_steps`` is hit or a state
         becomes non-finite, status is ``"failed"``, the message says why and
         the outputs not reached are NaN.
@@ -226,7 +228,7 @@ def dopri5(f, y0, t_eval, params, *, rtol: float = 1e-8, atol: float = 1e-10, ma
         message = f"{what} at t={t_reached[i]:g}" + (
             f" ({bad.size} of {status.size} trajectories failed, first #{i})" if batched else "")
     attempts = int((n_steps + n_rej).max())
-    return Solution(t=t_eval, y=np.asarray(ys), method="dopri5", nfev=6 * attempts + 2 + 1,
+    return Solution(t=t_eval, y=np.asarray(ys), method="dopri5", nfev=6 * attempts + (1 if has_first else 2),
                     n_steps=int(n_steps.max()), seconds=seconds,
                     status="failed" if bad.size else "success", message=message,
                     compile_seconds=compile_s,

@@ -41,11 +41,17 @@ def _jax_jacobian(f, params, y0):
         jf = jax.jit(jax.jacfwd(lambda t, y, p: f(t, y, p), argnums=1))
         cache["jac"] = jf
     p = {k: np.asarray(v, dtype=np.float64) for k, v in params.items()}
+    y0 = np.asarray(y0, dtype=np.float64)
     try:
-        np.asarray(jf(0.0, np.asarray(y0, dtype=np.float64), p))
-    except Exception:  # any tracing failure: scipy's finite differences instead
-        cache["jac"] = None
-        return None
+        np.asarray(jf(0.0, y0, p))
+    except Exception:  # noqa: BLE001 - parameters may be needed as Python numbers: bake them in
+        fixed = dict(params)
+        js = jax.jit(jax.jacfwd(lambda t, y: f(t, y, fixed), argnums=1))
+        try:
+            np.asarray(js(0.0, y0))
+        except Exception:  # noqa: BLE001 - f does not trace at all: scipy's finite differences
+            return None
+        return lambda t, y: np.asarray(js(t, y))
 
     def jac(t, y):
         return np.asarray(jf(t, y, p))

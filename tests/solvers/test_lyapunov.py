@@ -45,6 +45,7 @@ def test_sum_of_exponents_equals_trace_of_jacobian(lorenz_result):
     assert lorenz_result.exponents.sum() == pytest.approx(trace, rel=1e-4)
 
 
+@pytest.mark.slow  # two more compilations
 def test_largest_exponent_equals_first_of_spectrum():
     kw = dict(dt=0.01, t_end=60.0, transient=10.0)
     full = lyapunov_spectrum(lorenz63, [1.0, 1.0, 20.0], LORENZ_PARAMS, n_exponents=2, **kw)
