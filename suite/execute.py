@@ -55,7 +55,8 @@ from surrogates import Budget, LearnerError, NotApplicableError
 from .cell import CellOutcome, CellSpec, MetricRow
 from .datasets import DataStreams, attractor_std, data_seed
 from .physics import build_physics
-from .tasks import TASK_OPTION_DEFAULTS, TASKS, TaskContext, resolve_task_options, setup_task, time_unit_kind
+from .tasks import (TASK_OPTION_DEFAULTS, TASKS, TaskContext, expected_samples, resolve_task_options, setup_task,
+                    time_unit_kind)
 
 __all__ = ["TASKS", "TASK_OPTION_DEFAULTS", "TRAIN_BUDGET_SHARE", "check_applicable", "run_cell"]
 
@@ -137,12 +138,21 @@ def _run(spec: CellSpec, info: dict, cost: dict):
     info.update(pinfo)
     learner = _make_learner(spec.learner, dict(spec.learner_params))
 
+    if not 0.0 < float(spec.fraction) <= 1.0:
+        raise ValueError(f"sampling fraction must be in (0, 1], got {spec.fraction:g}")
+    if not (np.isfinite(float(spec.noise)) and float(spec.noise) >= 0.0):
+        raise ValueError(f"noise level must be a non-negative number, got {spec.noise!r}")
+    ctx = TaskContext(system=system, task=spec.task, options=options, fraction=float(spec.fraction),
+                      noise=float(spec.noise), scale=None, streams=DataStreams(data_seed(spec)),
+                      regular=bool(caps.needs_regular_sampling), min_samples=int(caps.min_samples))
+    n_seen, n_grid = expected_samples(ctx)  # no integration needed: decided before building data
+    if n_seen < max(ctx.min_samples, 2):
+        return ("not_applicable", [], f"fraction {spec.fraction:g} of {n_grid} samples gives {n_seen} "
+                f"training samples; the learner needs at least {max(ctx.min_samples, 2)}")
+
     info["stage"] = "data"
     t0 = time.perf_counter()
-    streams = DataStreams(data_seed(spec))
-    ctx = TaskContext(system=system, task=spec.task, options=options, fraction=float(spec.fraction),
-                      noise=float(spec.noise), scale=attractor_std(system), streams=streams,
-                      regular=bool(caps.needs_regular_sampling), min_samples=int(caps.min_samples))
+    ctx.scale = attractor_std(system)
     try:
         setup = setup_task(ctx, tuple(pinfo.get("unknown", ())))
     except NotApplicableError as exc:

@@ -81,6 +81,7 @@ __all__ = [
     "TaskContext",
     "TaskSetup",
     "resolve_task_options",
+    "expected_samples",
     "setup_task",
     "time_unit_kind",
 ]
@@ -92,7 +93,7 @@ _PHYSICS_OPTIONS = {"removed_term": ""}
 TASK_OPTION_DEFAULTS: dict[str, dict[str, object]] = {
     "reconstruct": {"window_lyapunov_times": 5.0, **_PHYSICS_OPTIONS},
     "forecast": {"train_lyapunov_times": 20.0, "n_starts": 10, "history_steps": 100,
-                 "horizon_lyapunov_times": 8.0, "curve_points": 25, "vpt_threshold": 0.4,
+                 "horizon_lyapunov_times": 10.0, "curve_points": 25, "vpt_threshold": 0.4,
                  **_PHYSICS_OPTIONS},
     "climate": {"train_lyapunov_times": 20.0, "climate_lyapunov_times": 100.0, "history_steps": 100,
                 "welch_nperseg": 256, "lyapunov_chunks": 30, "lyapunov_chunk_lyapunov_times": 0.5,
@@ -387,6 +388,17 @@ def _setup_climate(ctx: TaskContext) -> TaskSetup:
         return rows, cost, extra
 
     return TaskSetup(data, info, evaluate)
+
+
+def expected_samples(ctx: TaskContext) -> tuple[int, int]:
+    """(samples the learner will see, sample-grid size), computed without integrating anything."""
+    o = ctx.options
+    key = "window_lyapunov_times" if ctx.task in ("reconstruct", "identify") else "train_lyapunov_times"
+    n = int(round(o[key] * ctx.time_unit / float(ctx.system.sample_dt))) + 1
+    if ctx.regular:
+        stride = max(1, int(round(1.0 / ctx.fraction)))
+        return (n + stride - 1) // stride, n
+    return int(round(ctx.fraction * n)), n
 
 
 def setup_task(ctx: TaskContext, unknown: tuple[str, ...] = ()) -> TaskSetup:

@@ -266,7 +266,6 @@ def test_identify_sindy_full_physics():
     ("DivergingLearner", "diverged", "blew up"),
     ("SlowLearner", "timeout", "budget"),
     ("RefusingLearner", "not_applicable", "cannot handle"),
-    ("GreedyLearner", "not_applicable", "needs at least 1000000"),
 ])
 def test_statuses(cls, status, text):
     o = run_cell(spec("forecast", f"{HERE}:{cls}", task_options=TINY_FORECAST))
@@ -291,6 +290,14 @@ def test_not_applicable_before_any_data(kw, text):
     assert "data_seconds" not in o.cost  # decided from the capabilities alone
 
 
+def test_too_few_samples_is_not_applicable_before_any_data():
+    o = run_cell(spec("forecast", f"{HERE}:GreedyLearner", task_options=TINY_FORECAST, fraction=0.5))
+    assert o.status == "not_applicable"
+    # 1 Lyapunov time (1/0.9056, Sprott 2003) at sample_dt 0.01: round(110.4) + 1 = 111 grid points, half seen
+    assert "fraction 0.5 of 111 samples gives 56 training samples; the learner needs at least 1000000" == o.error
+    assert "data_seconds" not in o.cost
+
+
 def test_bad_spec_is_a_failed_row():
     o = run_cell(spec("forecast", "persistence", task_options={"horizon": 3}))
     assert o.status == "failed" and "unknown option 'horizon'" in o.error
@@ -298,6 +305,8 @@ def test_bad_spec_is_a_failed_row():
     assert o.status == "failed" and "no_such_learner" in o.error
     o = run_cell(CellSpec("lorenz63", "dance", "persistence"))
     assert o.status == "failed" and "unknown task" in o.error
+    o = run_cell(spec("forecast", "persistence", fraction=1.5))
+    assert o.status == "failed" and "fraction" in o.error
 
 
 def test_budget_seed_and_data_passed_to_the_learner():
