@@ -235,7 +235,9 @@ def lyapunov_spectrum(f, y0, params, *, dt: float = 0.01, t_end: float = 1000.0,
     step : callable, optional
         Jittable one-step map ``step(t, y, dt, params) -> y_next`` used
         instead of RK4 on ``f`` (e.g. an ETDRK4 step of a PDE on real
-        coordinates, or a symplectic step).
+        coordinates, or a symplectic step). A map built for one step size
+        (``make_etdrk4_step``) must be called with the same ``dt``; ``f``
+        may then be None.
 
     Returns
     -------

@@ -24,7 +24,7 @@ def test_linear_system_exponents_are_real_parts_of_eigenvalues():
 
 @pytest.fixture(scope="module")
 def lorenz_result():
-    return lyapunov_spectrum(lorenz63, [1.0, 1.0, 20.0], LORENZ_PARAMS, dt=0.01, t_end=300.0, transient=20.0)
+    return lyapunov_spectrum(lorenz63, [1.0, 1.0, 20.0], LORENZ_PARAMS, dt=0.01, t_end=800.0, transient=20.0)
 
 
 def test_lorenz63_spectrum_matches_published_values(lorenz_result):
