@@ -115,13 +115,18 @@ def _batched(f, params, probe):
     return F
 
 
+class _TooStiff(Exception):
+    """The rollout exceeded its evaluation cap."""
+
+
 class SINDy(Learner):
     r"""Sparse identification of nonlinear dynamics.
 
     Fits :math:`\dot x = \Theta(t, x)\,\Xi^\top` by sequentially thresholded
     least squares (STLSQ): a (ridge) least-squares fit, then coefficients
     smaller than ``threshold`` are set to zero and the rest refitted, until the
-    active set stops changing. Time derivatives come from the data: second-
+    active set stops changing; a last plain least-squares fit on the active
+    set removes the ridge bias. Time derivatives come from the data: second-
     order finite differences on the (possibly non-uniform) sample grid for
     clean data, or smoothed derivatives for noisy data (Savitzky–Golay on
     equally spaced samples, a smoothing spline with generalised
@@ -141,7 +146,10 @@ class SINDy(Learner):
     threshold : float
         STLSQ threshold on coefficient magnitude.
     alpha : float
-        Ridge penalty in each least-squares step (0: plain least squares).
+        Ridge penalty in each least-squares step, relative to library columns
+        scaled to unit root mean square (0: plain least squares). A small
+        penalty keeps the fit well posed when library terms are nearly
+        collinear on the data (e.g. a conserved quadratic quantity).
     max_iter : int
         Most STLSQ iterations (capped by ``Budget.max_iterations``).
     trig : bool
@@ -193,7 +201,7 @@ class SINDy(Learner):
     reference = ("Brunton, Proctor & Kutz, Discovering governing equations from data by sparse "
                  "identification of nonlinear dynamical systems, PNAS 113, 3932 (2016)")
 
-    def __init__(self, degree=2, threshold=0.1, alpha=0.0, max_iter=20, trig=False,
+    def __init__(self, degree=2, threshold=0.1, alpha=1e-5, max_iter=20, trig=False,
                  time_frequencies=(), derivative="auto", savgol_window=15, savgol_order=3,
                  rtol=1e-8, atol=1e-8, blowup=100.0):
         self.degree = degree
@@ -299,20 +307,31 @@ class SINDy(Learner):
         self.bounds_ = (lo, hi)
 
     def _stlsq(self, theta, target, n_iter, clock):
-        """Sequentially thresholded (ridge) least squares, all outputs at once."""
+        """Sequentially thresholded (ridge) least squares, all outputs at once.
+
+        The least-squares steps work on library columns scaled to unit root
+        mean square (so that ``alpha`` is relative and scale-free); the
+        threshold applies to the coefficients in the data's own units.
+        """
         if not (np.all(np.isfinite(theta)) and np.all(np.isfinite(target))):
             raise InvalidDataError("the library or derivative estimates are not finite")
+        col = np.sqrt(np.mean(theta ** 2, axis=0))
+        col = np.where(col > 0, col, 1.0)
+        a = theta / col
         n_terms, d = theta.shape[1], target.shape[1]
         xi = np.zeros((d, n_terms))
         active = np.ones((d, n_terms), dtype=bool)
-        for it in range(max(int(n_iter), 1)):
+
+        def refit(alpha):
             for j in range(d):
                 cols = np.flatnonzero(active[j])
                 xi[j] = 0.0
                 if cols.size:
-                    xi[j, cols] = self._ridge(theta[:, cols], target[:, j])
+                    xi[j, cols] = self._ridge(a[:, cols], target[:, j], alpha) / col[cols]
+
+        for it in range(max(int(n_iter), 1)):
+            refit(float(self.alpha))
             new_active = np.abs(xi) >= float(self.threshold)
-            xi[~new_active] = 0.0
             if np.array_equal(new_active, active):
                 break
             active = new_active
@@ -320,20 +339,19 @@ class SINDy(Learner):
                 if it == 0:
                     raise OverBudgetError("SINDy ran out of time before one STLSQ pass")
                 break
-        # final refit on the active set (without thresholding)
-        for j in range(d):
-            cols = np.flatnonzero(active[j])
-            xi[j] = 0.0
-            if cols.size:
-                xi[j, cols] = self._ridge(theta[:, cols], target[:, j])
+        # final fit on the active set without the penalty (removes the ridge bias)
+        refit(0.0)
+        xi[~active] = 0.0
         return xi
 
-    def _ridge(self, a, b):
-        alpha = float(self.alpha)
+    @staticmethod
+    def _ridge(a, b, alpha):
+        """Least squares with penalty ``alpha * n * |w|^2`` on unit-RMS columns ``a`` (n, k)."""
         if alpha > 0:
             from scipy.linalg import solve
 
-            return solve(a.T @ a + alpha * np.eye(a.shape[1]), a.T @ b, assume_a="pos")
+            n = a.shape[0]
+            return solve(a.T @ a / n + alpha * np.eye(a.shape[1]), a.T @ b / n, assume_a="pos")
         return np.linalg.lstsq(a, b, rcond=None)[0]
 
     def _identify(self, physics, params, t_all, x_all, dx_all, clock):
@@ -402,16 +420,26 @@ class SINDy(Learner):
         centre, width = 0.5 * (lo + hi), np.maximum(hi - lo, 1e-12)
         limit = float(self.blowup)
 
+        cap = max(100_000, 500 * (t.size - 1))
+        calls = [0]
+
         def rhs(tt, z):
+            calls[0] += 1
+            if calls[0] > cap:
+                raise _TooStiff
             return self.field(tt, z.reshape(B, d)).ravel()
 
         def escaped(tt, z):
             return limit - np.max(np.abs(z.reshape(B, d) - centre) / width)
 
         escaped.terminal = True
-        with np.errstate(over="ignore", invalid="ignore"):
-            sol = solve_ivp(rhs, (float(t[0]), float(t[-1])), y0.ravel(), method="DOP853", t_eval=t,
-                            rtol=float(self.rtol), atol=float(self.atol), events=escaped)
+        try:
+            with np.errstate(over="ignore", invalid="ignore"):
+                sol = solve_ivp(rhs, (float(t[0]), float(t[-1])), y0.ravel(), method="DOP853", t_eval=t,
+                                rtol=float(self.rtol), atol=float(self.atol), events=escaped)
+        except _TooStiff:
+            raise DivergedError(f"SINDy rollout needed more than {cap} field evaluations "
+                                "(the learned field is stiff or blowing up)") from None
         if sol.status == 1 or sol.status == -1 or sol.y.shape[1] != t.size:
             raise DivergedError(f"SINDy rollout diverged at t = {sol.t[-1]:.4g} ({sol.message})")
         out = sol.y.T.reshape(t.size, B, d).transpose(1, 0, 2)
