@@ -7,8 +7,10 @@ Order of work, so that a bad grid can never touch a store:
 3. open or create the store, taking its run lock (:class:`suite.store.Store`);
 4. skip every cell whose key is already in the store (resume is the
    default: re-running a grid runs only what is missing);
-5. write a manifest, run the remaining cells, and record each result in
-   this process, one transaction per cell, as it arrives.
+5. run the remaining cells and record each result in this process, one
+   transaction per cell, as it arrives (the run's manifest is written with
+   the first result, so a run that finishes no cell leaves the store as it
+   was, apart from creating it).
 
 A cell's key (:meth:`suite.cell.CellSpec.key`) hashes its spec with the
 package version, so a new release re-runs everything into the same store
@@ -80,7 +82,7 @@ class _Progress:
 
     def update(self, result) -> None:
         self.done += 1
-        if result.outcome.status != "ok":
+        if result.outcome.status not in ("ok", "not_applicable"):  # failed, diverged, timeout
             self.failed += 1
         if self.bar is not None:
             self.bar.update(1)
@@ -156,13 +158,14 @@ def run_grid(grid, store=None, *, executor: str = "local", workers: int | None =
                                   scheduler=scheduler, retries=int(retries),
                                   cells_per_worker=int(cells_per_worker), cell_function=ex.function,
                                   n_pending=len(todo))
-        summary.manifest_id = mid = st.add_manifest(manifest)
         tasks = [CellTask(k, s, s.budget_seconds, grid.memory_mb_per_cell) for k, s in todo]
         bar = _Progress(len(tasks), progress)
 
         def on_result(r):
+            if summary.manifest_id is None:  # written with the first result: a run that
+                summary.manifest_id = st.add_manifest(manifest)  # finishes no cell adds nothing
             st.record(r.key, r.spec, r.outcome, started=r.started, finished=r.finished,
-                      attempts=r.attempts, manifest_id=mid)
+                      attempts=r.attempts, manifest_id=summary.manifest_id)
             summary.ran += 1
             summary.statuses[r.outcome.status] = summary.statuses.get(r.outcome.status, 0) + 1
             bar.update(r)
