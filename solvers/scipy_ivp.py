@@ -8,6 +8,7 @@ import weakref
 
 import jax
 import numpy as np
+from scipy import integrate
 from scipy.integrate import solve_ivp
 
 from .result import Solution
@@ -17,6 +18,26 @@ __all__ = ["SCIPY_METHODS", "solve_scipy"]
 SCIPY_METHODS = ("DOP853", "RK45", "RK23", "Radau", "BDF", "LSODA")
 _IMPLICIT = ("Radau", "BDF", "LSODA")
 _JACOBIANS: "weakref.WeakKeyDictionary" = weakref.WeakKeyDictionary()
+
+
+_COUNTING: dict = {}
+
+
+def _counting_class(method: str):
+    """The scipy solver class of ``method`` with a count of accepted steps."""
+    cls = _COUNTING.get(method)
+    if cls is None:
+        base = getattr(integrate, method)
+
+        def _step_impl(self):
+            ok, msg = base._step_impl(self)
+            if ok:
+                self.n_accepted = getattr(self, "n_accepted", 0) + 1
+            return ok, msg
+
+        cls = type(f"Counting{method}", (base,), {"_step_impl": _step_impl})
+        _COUNTING[method] = cls
+    return cls
 
 
 def _check_method(method: str) -> str:
@@ -91,8 +112,7 @@ def solve_scipy(f, t_span, y0, params, *, method: str = "DOP853", t_eval=None, r
     -------
     Solution
         ``nfev`` counts right-hand-side calls; ``extra`` holds ``njev`` and
-        ``nlu``. ``n_steps`` is known only without ``t_eval`` (scipy does
-        not report it otherwise) and is 0 then. A solver failure or an exception raised by ``f`` gives
+        ``nlu``; ``n_steps`` counts accepted steps. A solver failure or an exception raised by ``f`` gives
         status ``"failed"`` with the message.
 
     References
@@ -145,7 +165,15 @@ def solve_scipy(f, t_span, y0, params, *, method: str = "DOP853", t_eval=None, r
     t0 = time.perf_counter()
     try:
         with np.errstate(over="ignore", invalid="ignore"):
-            sol = solve_ivp(rhs, t_span, y0, method=method, t_eval=t_eval, rtol=rtol, atol=atol,
+            counter = {}
+            cls = _counting_class(method)
+
+            class _Solver(cls):  # remembers itself so that its step count can be read back
+                def __init__(self, *a, **k):
+                    super().__init__(*a, **k)
+                    counter["solver"] = self
+
+            sol = solve_ivp(rhs, t_span, y0, method=_Solver, t_eval=t_eval, rtol=rtol, atol=atol,
                             max_step=max_step, **kwargs)
     except Exception as exc:  # a failure is a status, never an exception mid-sweep
         seconds = time.perf_counter() - t0
@@ -164,6 +192,6 @@ def solve_scipy(f, t_span, y0, params, *, method: str = "DOP853", t_eval=None, r
         y = np.concatenate([y, pad]) if len(t) else pad
         t = t_eval
     return Solution(t=np.asarray(t), y=y, method=f"scipy-{method}", nfev=int(sol.nfev),
-                    n_steps=max(len(sol.t) - 1, 0) if t_eval is None else 0,
+                    n_steps=int(getattr(counter.get("solver"), "n_accepted", 0)),
                     seconds=seconds, status=status, message=message,
                     extra={"njev": int(sol.njev), "nlu": int(sol.nlu), "jacobian": jac_source})

@@ -45,3 +45,11 @@ def test_exception_in_field_is_a_status():
 
     sol = solve_scipy(broken, (0.0, 1.0), [1.0], {}, t_eval=[0.0, 1.0])
     assert sol.status == "failed" and "boom" in sol.message and sol.y.shape == (2, 1)
+
+
+def test_accepted_steps_counted_with_and_without_t_eval():
+    kw = dict(rtol=1e-8, atol=1e-10)
+    own = solve_scipy(oscillator, (0.0, 3.0), [1.0, 0.0], {"w": 1.0}, **kw)
+    grid = solve_scipy(oscillator, (0.0, 3.0), [1.0, 0.0], {"w": 1.0}, t_eval=[0.0, 1.5, 3.0], **kw)
+    # without t_eval scipy returns one row per accepted step (plus the start)
+    assert own.n_steps == len(own.t) - 1 == grid.n_steps > 0
