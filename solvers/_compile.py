@@ -42,12 +42,15 @@ def clear_cache() -> None:
 
 
 def _as_param_arrays(params):
+    """Parameter pytree with Python numbers as float64 arrays (ints too: parameters are floats)."""
     params = {} if params is None else params
-    out = {}
-    for k, v in params.items():
-        a = np.asarray(v)
-        out[k] = a.astype(np.float64) if a.dtype.kind in "biuf" else a
-    return out
+
+    def leaf(v):
+        if isinstance(v, (bool, int, float, np.floating, np.integer)):
+            return np.asarray(v, dtype=np.float64)
+        return np.asarray(v)
+
+    return jax.tree_util.tree_map(leaf, params)
 
 
 def _signature(tree):
@@ -56,7 +59,8 @@ def _signature(tree):
 
 
 def _static_key(params):
-    return tuple(sorted((k, tuple(np.ravel(np.asarray(v)).tolist())) for k, v in params.items()))
+    leaves, treedef = jax.tree_util.tree_flatten(params)
+    return treedef, tuple(tuple(np.ravel(np.asarray(v)).tolist()) for v in leaves)
 
 
 def _put(key, value):
@@ -93,10 +97,10 @@ def run_compiled(key: Hashable, fn: Callable, params, args: tuple):
         else:
             _CACHE.move_to_end(ck)
     if static_mode:
-        ck = (key, "static", sig, _static_key(params or {}))
+        ck = (key, "static", sig, _static_key(params if params is not None else {}))
         compiled = _CACHE.get(ck)
         if compiled is None:
-            fixed = dict(params or {})
+            fixed = params if params is not None else {}
             t0 = time.perf_counter()
             compiled = jax.jit(lambda *a: fn(fixed, *a)).lower(*args).compile()
             compile_seconds = time.perf_counter() - t0
