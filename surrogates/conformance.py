@@ -385,6 +385,10 @@ def _capture_global_state() -> dict:
     }
 
 
+def _same_np_state(a, b) -> bool:
+    return a[0] == b[0] and np.array_equal(a[1], b[1]) and tuple(a[2:]) == tuple(b[2:])
+
+
 def _diff_global_state(before: dict, after: dict) -> list[str]:
     changed = []
     for k, v in before["jax.config"].items():
@@ -393,8 +397,7 @@ def _diff_global_state(before: dict, after: dict) -> list[str]:
     for k in ("numpy errstate", "python random"):
         if before[k] != after[k]:
             changed.append(k)
-    b, a = before["numpy RandomState"], after["numpy RandomState"]
-    if not (b[0] == a[0] and np.array_equal(b[1], a[1]) and tuple(b[2:]) == tuple(a[2:])):
+    if not _same_np_state(before["numpy RandomState"], after["numpy RandomState"]):
         changed.append("numpy global RandomState (np.random.*)")
     return changed
 
@@ -463,7 +466,7 @@ def check_init_no_arrays_or_random(learner):
     cls = type(learner)
     a, b = cls(**copy.deepcopy(learner.get_params())), cls(**copy.deepcopy(learner.get_params()))
     after = (np.random.get_state(), random.getstate())
-    if not (np.array_equal(before[0][1], after[0][1]) and before[1] == after[1]):
+    if not (_same_np_state(before[0], after[0]) and before[1] == after[1]):
         raise CheckFailed("the constructor draws from a global random generator")
     for n, v in a.get_params().items():
         if isinstance(v, (np.ndarray, jax.Array)):
@@ -657,8 +660,13 @@ def check_budget_seconds(learner):
 
 
 def _check_dimension(learner, pb: Problem):
-    model = _fit(learner, pb)
-    out = _outputs(model, pb)
+    try:
+        model = _fit(learner, pb)
+        out = _outputs(model, pb)
+    except CheckFailed:
+        raise
+    except Exception as exc:
+        raise CheckFailed(f"on the {pb.dim}-D {pb.name} problem: {type(exc).__name__}: {_one_line(exc)}") from None
     for k, v in out.items():
         v = np.asarray(v)
         if v.shape[-1] != pb.dim or not np.all(np.isfinite(v)):
@@ -841,7 +849,22 @@ def iter_checks(learner) -> Iterator[tuple[str, Callable[[], None]]]:
     """
     model, _ = _resolve(learner)
     for check in _CHECKS:
-        yield check.__name__.removeprefix("check_"), functools.partial(check, model)
+        yield check.__name__.removeprefix("check_"), _as_check(check, model)
+
+
+def _as_check(check, model):
+    """``check(model)`` with any unexpected exception turned into :class:`CheckFailed` (chained)."""
+
+    @functools.wraps(check)
+    def run():
+        try:
+            check(model)
+        except (CheckFailed, CheckSkipped):
+            raise
+        except Exception as exc:
+            raise CheckFailed(f"{type(exc).__name__}: {_one_line(exc)}") from exc
+
+    return run
 
 
 def check_learner(learner_or_name, *, params=None) -> list[CheckResult]:
@@ -863,10 +886,8 @@ def check_learner(learner_or_name, *, params=None) -> list[CheckResult]:
             check()
         except CheckSkipped as exc:
             results.append(CheckResult(name, True, _one_line(exc), skipped=True))
-        except CheckFailed as exc:
+        except CheckFailed as exc:  # an unexpected error arrives here as "Type: message"
             results.append(CheckResult(name, False, _one_line(exc)))
-        except Exception as exc:  # an unexpected error is a failure with its one-line reason
-            results.append(CheckResult(name, False, f"{type(exc).__name__}: {_one_line(exc)}"))
         else:
             results.append(CheckResult(name, True, ""))
     _FITTED.clear()
