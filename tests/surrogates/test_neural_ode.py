@@ -28,7 +28,7 @@ from surrogates.neural_ode import NeuralODE
 PARAMS = {"k": 1.0, "c": 0.2}
 # one configuration for every test of this file, so the compiled training
 # chunk is shared (compiling dominates the cost of these small fits)
-CONFIG = dict(width=32, depth=2, window=6, substeps=1, batch_size=32, n_iterations=600, learning_rate=3e-3)
+CONFIG = dict(width=32, depth=2, window=6, substeps=1, batch_size=32, n_iterations=1500, learning_rate=1e-2)
 
 
 def damped(t, y, p):
@@ -80,11 +80,10 @@ def _max_rel_error(model, truth):
 
 
 def test_rollout_matches_truth_over_short_horizon(fitted, truth):
-    """Data only, 600 Adam steps: max relative error over t in [0, 5] (~0.8 periods).
+    """Data only, 1500 Adam steps: max relative error over t in [0, 5] (~0.8 periods).
 
-    Measured 0.020 (seed 0). Tolerance 0.1: common practice for "learned the
-    field" at this budget; an untrained field (zero correction impossible here:
-    random network) gives errors of order 1.
+    Measured 0.024 (seed 0). Tolerance 0.1: common practice for "learned the
+    field" at this budget (the untrained random network is off by order 1).
     """
     err = _max_rel_error(fitted["none"], truth)
     assert err < 0.1, err
@@ -93,10 +92,10 @@ def test_rollout_matches_truth_over_short_horizon(fitted, truth):
 def test_partial_physics_correction_beats_data_only(fitted, truth):
     """Universal differential equation: known undamped field + learned damping.
 
-    Equal budget (600 steps, same network). Measured: data only 0.020,
-    partial 0.0013 (15x better). Asserted: partial < 0.01 and at least
-    3x better than data only. Without any correction the undamped field's
-    error is 0.38 (checked below), so the network did learn the damping.
+    Equal budget (1500 steps, same network). Measured: data only 0.024,
+    partial 0.0030 (8x better). Asserted: partial < 0.01 and at least 3x
+    better than data only. Without any correction the undamped field's error
+    is 0.45 (checked below), so the network did learn the damping.
     """
     err_none = _max_rel_error(fitted["none"], truth)
     err_partial = _max_rel_error(fitted["partial"], truth)
@@ -109,14 +108,18 @@ def test_partial_physics_correction_beats_data_only(fitted, truth):
 
 
 def test_learned_correction_is_the_removed_term(fitted):
-    """The correction of the partial model approximates the damping -c x' (closed form)."""
+    """The correction of the partial model approximates the damping -c x' (closed form).
+
+    Measured on [-1, 1]^2: max |correction of x'| 4e-5, max error of the
+    correction of v' 0.0039 (the term itself reaches 0.2).
+    """
     model = fitted["partial"]
     rng = np.random.default_rng(1)
     y = rng.uniform(-1.0, 1.0, size=(50, 2))
     corr = model.vector_field(0.0, y) - np.stack([undamped(0.0, yy, PARAMS) for yy in y])
     expected = -PARAMS["c"] * y[:, 1]
-    assert np.max(np.abs(corr[:, 0])) < 0.02
-    assert np.max(np.abs(corr[:, 1] - expected)) < 0.03 * np.max(np.abs(expected)) + 0.01
+    assert np.max(np.abs(corr[:, 0])) < 0.005
+    assert np.max(np.abs(corr[:, 1] - expected)) < 0.015
 
 
 def test_same_seed_identical_and_no_recompilation(data, fitted, truth):
@@ -156,7 +159,7 @@ def test_irregular_samples(truth):
         trajs.append(Trajectory(t, _solve(y0, t)))
     data = TrainingData(tuple(trajs))
     m = NeuralODE(**CONFIG).fit(data, PARTIAL, budget=Budget(max_iterations=300), seed=0)
-    assert _max_rel_error(m, truth) < 0.02  # measured 0.004
+    assert _max_rel_error(m, truth) < 0.02  # measured 0.006
 
 
 def test_typed_errors(data, fitted, truth):
