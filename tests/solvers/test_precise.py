@@ -46,7 +46,7 @@ def test_cross_check_is_order_one_inside_the_horizon_and_large_beyond():
     short = cross_check(lorenz63, [1.0, 1.0, 20.0], np.linspace(0.0, 2.0, 21), p)
     # tolerance-relative difference of O(1) (common practice: < 100) over two time units
     assert short < 100.0
-    long = cross_check(lorenz63, [1.0, 1.0, 20.0], np.linspace(0.0, 30.0, 31), p)
+    long = cross_check(lorenz63, [1.0, 1.0, 20.0], np.linspace(0.0, 20.0, 21), p)
     assert long > 1e3  # past the predictability horizon the runs disagree (Lorenz 1963)
 
 
