@@ -9,9 +9,11 @@ overrides), ``fraction``, ``noise``, ``physics``, ``seed``, ``status``,
 Cost figures of a cell (``train_seconds``, ``train_cpu_seconds``,
 ``inference_seconds_per_lyapunov_time``, ``peak_memory_mb``,
 ``n_parameters``, whatever numbers the cell function reported) are rows of
-kind ``cost``. A cell with a non-``ok`` status and no figures appears as one
-row with ``metric``, ``horizon`` and ``value`` empty, so that every cell of
-the store is in the table; figures a non-``ok`` cell did report are kept.
+kind ``cost``. A cell with a non-``ok`` status (failed, diverged, timeout,
+not_applicable) appears as exactly one row with its status and error and
+``kind``, ``metric``, ``horizon`` and ``value`` empty, so that every cell of
+the store is in the table once and no partial figure of a broken cell is
+mistaken for a result (the store keeps whatever such a cell reported).
 """
 
 from __future__ import annotations
@@ -66,11 +68,13 @@ def _table(st: Store) -> pd.DataFrame:
                 json.dumps(spec.get("task_options", {}), sort_keys=True),
                 float(c["fraction"]), float(c["noise"]), c["physics"], int(c["seed"]), c["status"],
                 c["error"] or "")
-        figures = list(by_cell.get(c["key"], []))
-        for name, v in sorted(c["cost"].items()):
-            v = _cost_value(v)
-            if v is not None:
-                figures.append(("cost", name, None, v))
+        figures = []
+        if c["status"] == "ok":
+            figures = list(by_cell.get(c["key"], []))
+            for name, v in sorted(c["cost"].items()):
+                v = _cost_value(v)
+                if v is not None:
+                    figures.append(("cost", name, None, v))
         if not figures:
             rows.append(base + (None, None, None, math.nan))
             continue

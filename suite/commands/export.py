@@ -11,8 +11,8 @@ def register(sub) -> None:
         description="Write one row per cell x metric x horizon: cell, system, task, learner, "
                     "learner_params, system_params, task_options, fraction, noise, physics, seed, "
                     "status, error, kind (accuracy|cost), metric, horizon (Lyapunov times, empty where "
-                    "not a curve), value. Cells without figures (failed, timeout, ...) appear as one row "
-                    "with the metric empty. The file is written atomically.")
+                    "not a curve), value. Cells whose status is not ok (failed, diverged, timeout, "
+                    "not_applicable) appear as one row with the metric empty. The file is written atomically.")
     p.add_argument("store", metavar="STORE", help="SQLite store written by `lyapbench run`")
     p.add_argument("--out", required=True, metavar="FILE", help="FILE.parquet or FILE.csv")
     p.set_defaults(func=run)

@@ -32,7 +32,9 @@ def store(tmp_path):
             cost={"train_seconds": 1.5, "train_cpu_seconds": 1.4, "inference_seconds_per_lyapunov_time": 0.002,
                   "peak_memory_mb": 210.0, "n_parameters": 900, "note": "text is not a figure"}))
         st.record(failed.key(), failed, CellOutcome("failed", error="ValueError: boom"))
-        st.record(timeout.key(), timeout, CellOutcome("timeout", error="killed after 12 s"))
+        st.record(timeout.key(), timeout, CellOutcome("timeout", error="killed after 12 s",
+                                                      metrics=[MetricRow("relative_l2", 0.5)],
+                                                      cost={"train_seconds": 12.0}))
     return path, ok, failed, timeout
 
 
