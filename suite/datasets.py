@@ -127,21 +127,29 @@ class TrustedTrajectory:
     horizons: tuple[float, ...]
 
 
-def trusted_trajectory(system, y0, duration: float, dt_out: float, max_segments: int = 1000) -> TrustedTrajectory:
+def trusted_trajectory(system, y0, duration: float, dt_out: float, max_segments: int = 1000,
+                       segment_hint: float | None = None) -> TrustedTrajectory:
     """States every ``dt_out`` over ``duration`` from ``y0``, built from reference segments.
 
     Each segment is integrated from the previous segment's last state inside
-    its horizon and cut at its own horizon (see the module notes).
+    its horizon and cut at its own horizon (see the module notes). So as not
+    to integrate far past a horizon that is then thrown away, the first
+    request is at most ``segment_hint`` time units (default 25 time units of
+    the system) and later ones 1.25 times the last horizon found (twice it
+    when the last segment ended at its request rather than at a horizon).
     """
     dt_out = float(dt_out)
     n_total = int(round(duration / dt_out))
     ts, ys, horizons = [np.zeros(1)], [np.asarray(y0, dtype=float)[None, :]], []
     done = 0
     state = np.asarray(y0, dtype=float)
+    hint = float(segment_hint if segment_hint is not None else 25.0 * float(system.time_unit))
+    request_steps = max(2, int(np.ceil(hint / dt_out)))
     while done < n_total:
         if len(horizons) >= max_segments:
             raise ReferenceUnavailableError(f"{system.name}: more than {max_segments} reference segments needed")
-        remaining = (n_total - done) * dt_out
+        steps = min(n_total - done, request_steps)
+        remaining = steps * dt_out
         t, y, h = reference_with_horizon(system, state, remaining, dt_out)
         k = int(np.floor(h / dt_out * (1 + _GRID_EPS) + _GRID_EPS))
         k = min(k, n_total - done, t.size - 1)
@@ -149,6 +157,8 @@ def trusted_trajectory(system, y0, duration: float, dt_out: float, max_segments:
             raise ReferenceUnavailableError(
                 f"{system.name}: reference horizon {h:.3g} is shorter than one output step {dt_out:g}")
         horizons.append(h)
+        reached_end = k >= steps
+        request_steps = max(2, int(np.ceil((2.0 if reached_end else 1.25) * k)))
         ts.append((done + np.arange(1, k + 1)) * dt_out)
         ys.append(y[1:k + 1])
         state = y[k]

@@ -7,7 +7,8 @@
     The learner's declared capabilities exclude the cell (task, physics
     level, Hamiltonian, regular sampling impossible, fewer samples than
     ``min_samples``) — checked *before* any data are built — or the learner
-    raised :class:`surrogates.NotApplicableError`. ``error`` holds the reason.
+    raised :class:`surrogates.NotApplicableError`. ``error`` holds the reason
+    (the message alone, no exception type, no traceback).
 ``diverged``
     :class:`surrogates.DivergedError`, or an output with non-finite values
     (checked by the harness, not trusted to the learner).
@@ -111,8 +112,12 @@ def run_cell(spec: CellSpec) -> CellOutcome:
         status, rows, error = _run(spec, info, cost)
     except Exception as exc:  # every failure becomes a row; the sweep goes on
         status = exc.status if isinstance(exc, LearnerError) else "failed"
-        rows, error = [], _one_line(exc)
-        info["traceback"] = traceback.format_exc()
+        rows = []
+        if status == "not_applicable":  # a reason, not a fault: the message alone
+            error = " ".join(str(exc).split()) or type(exc).__name__
+        else:
+            error = _one_line(exc)
+            info["traceback"] = traceback.format_exc()
     cost["total_seconds"] = time.perf_counter() - t_start
     cost["peak_memory_mb"] = _peak_memory_mb()
     if status == "ok":

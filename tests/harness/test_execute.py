@@ -132,6 +132,15 @@ class HamiltonianOnly(_Base):
     capabilities = Capabilities(tasks={"forecast"}, needs_hamiltonian=True)
 
 
+class RegularLearner(_Base):
+    capabilities = Capabilities(tasks={"forecast"}, needs_regular_sampling=True)
+    seen: list = []
+
+    def _rollout(self, y0, t, history):
+        RegularLearner.seen.append((np.diff(t), history.shape))
+        return super()._rollout(y0, t, history)
+
+
 class RecordingLearner(_Base):
     """Remembers the budget, seed and data it was given (class-level log)."""
 
@@ -275,6 +284,8 @@ def test_statuses(cls, status, text):
     assert o.metrics == []
     if status in ("failed", "diverged", "timeout"):
         assert "Traceback" in o.info["traceback"]
+    else:
+        assert o.error == "cannot handle this system"  # a reason: the message alone
 
 
 @pytest.mark.parametrize("kw, text", [
@@ -296,6 +307,29 @@ def test_too_few_samples_is_not_applicable_before_any_data():
     # 1 Lyapunov time (1/0.9056, Sprott 2003) at sample_dt 0.01: round(110.4) + 1 = 111 grid points, half seen
     assert "fraction 0.5 of 111 samples gives 56 training samples; the learner needs at least 1000000" == o.error
     assert "data_seconds" not in o.cost
+
+
+def test_regular_sampling_for_learners_that_need_it():
+    RegularLearner.seen.clear()
+    o = run_cell(spec("forecast", f"{HERE}:RegularLearner", fraction=0.25, task_options=TINY_FORECAST))
+    assert o.status == "ok", o.error
+    assert o.info["sampling"] == "regular" and o.info["stride"] == 4  # round(1/0.25)
+    assert o.info["n_samples"] == 28  # ceil(111 / 4) grid points 0, 4, ..., 108
+    steps, hist_shape = RegularLearner.seen[0]
+    np.testing.assert_allclose(steps, 0.04)  # rollout at the training spacing, 4 x sample_dt
+    assert hist_shape == (1, 2, 3)
+
+
+def test_energy_drift_on_the_pendulum():
+    kw = dict(physics="full", task_options=TINY_FORECAST)
+    tight = run_cell(CellSpec("pendulum", "forecast", f"{HERE}:EquationLearner", **kw))
+    loose = run_cell(CellSpec("pendulum", "forecast", f"{HERE}:EquationLearner", learner_params={"rtol": 1e-4}, **kw))
+    assert tight.status == loose.status == "ok", (tight.error, loose.error)
+    assert tight.info["time_unit_kind"] == "characteristic_time"  # not chaotic: the period is the unit
+    # DOP853 at rtol 1e-10 keeps the energy to ~1e-10 over half a period; at 1e-4 visibly worse (Hairer et al.)
+    assert rows(tight)["energy_drift"] < 1e-7
+    assert rows(loose)["energy_drift"] > 10 * rows(tight)["energy_drift"]
+    assert rows(tight)["conserved_drift_energy"] == rows(tight)["energy_drift"]
 
 
 def test_bad_spec_is_a_failed_row():
