@@ -78,6 +78,7 @@ __all__ = [
     "OutputCheckError",
     "TASKS",
     "TASK_OPTION_DEFAULTS",
+    "TASK_OPTION_HELP",
     "TaskContext",
     "TaskSetup",
     "resolve_task_options",
@@ -99,6 +100,25 @@ TASK_OPTION_DEFAULTS: dict[str, dict[str, object]] = {
                 "welch_nperseg": 256, "lyapunov_chunks": 30, "lyapunov_chunk_lyapunov_times": 0.5,
                 "lyapunov_delta": 1e-6, **_PHYSICS_OPTIONS},
     "identify": {"window_lyapunov_times": 5.0, "unknown": "", "guess_factor": 1.2, **_PHYSICS_OPTIONS},
+}
+
+#: One line per option, for listings and error messages.
+TASK_OPTION_HELP: dict[str, str] = {
+    "window_lyapunov_times": "length of the observed window, in time units of the system",
+    "train_lyapunov_times": "length of the training trajectory, in time units of the system",
+    "n_starts": "number of test start states (drawn on the attractor from a separate seed)",
+    "history_steps": "clean states given before each start, ending at it (reservoir warm-up)",
+    "horizon_lyapunov_times": "forecast length, in time units (clipped to the reference horizon)",
+    "curve_points": "number of rows of the nrmse-versus-horizon curve",
+    "vpt_threshold": "normalised error that ends the valid prediction time (Pathak et al. 2018: 0.4)",
+    "climate_lyapunov_times": "length of the autonomous climate rollout, in time units",
+    "welch_nperseg": "Welch segment length (samples) of the power spectra",
+    "lyapunov_chunks": "renormalisation chunks of the surrogate's Lyapunov probe (first 3 discarded)",
+    "lyapunov_chunk_lyapunov_times": "length of one renormalisation chunk, in time units",
+    "lyapunov_delta": "initial separation of the probe, in attractor standard deviations",
+    "removed_term": "term removed at physics level partial ('' = the system's last term)",
+    "unknown": "comma-separated parameters to identify ('' = the system's first parameter)",
+    "guess_factor": "initial guess of each unknown parameter = true value x this factor",
 }
 
 #: Metric names per task; ``<state>``, ``<k>``, ``<name>`` stand for a state

@@ -170,6 +170,8 @@ def test_exports():
     assert TASKS == ("reconstruct", "forecast", "climate", "identify")
     assert set(TASK_OPTION_DEFAULTS) == set(TASKS)
     assert TASK_OPTION_DEFAULTS["forecast"]["vpt_threshold"] == 0.4  # Pathak et al. (2018)
+    assert {k for d in TASK_OPTION_DEFAULTS.values() for k in d} == set(T.TASK_OPTION_HELP)
+    assert set(T.METRIC_NAMES) == set(T.HEADLINE_METRICS) == set(TASKS)
 
 
 def test_reconstruct_spline(monkeypatch):
