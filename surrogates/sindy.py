@@ -160,7 +160,8 @@ class SINDy(Learner):
         How dx/dt is estimated; ``"auto"`` uses finite differences on clean
         data and smoothing on noisy data (``TrainingData.noise > 0``).
     savgol_window : int
-        Window length (samples, odd) of the Savitzky–Golay filter.
+        Window length (samples, odd) of the Savitzky–Golay filter; with either
+        smoother, half a window of samples is dropped at each trajectory end.
     savgol_order : int
         Polynomial order of the Savitzky–Golay filter.
     rtol, atol : float
@@ -268,7 +269,12 @@ class SINDy(Learner):
             if tr.t.size < 3:
                 continue  # too short for a second-order derivative
             x, dx = self._derivatives(tr.t, tr.y, method)
-            ts.append(tr.t)
+            tt = tr.t
+            edge = int(self.savgol_window) // 2 if method != "finite_difference" else 0
+            if edge and tt.size > 4 * edge:
+                # smoothed derivatives are least accurate at the ends: drop half a window there
+                tt, x, dx = tt[edge:-edge], x[edge:-edge], dx[edge:-edge]
+            ts.append(tt)
             xs.append(x)
             dxs.append(dx)
         n = sum(t.size for t in ts)
