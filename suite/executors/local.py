@@ -19,11 +19,18 @@ Dead workers
     by the kernel for memory) is replaced and the cell retried ``retries``
     times (default 1); then it is recorded ``failed`` with the reason.
 Start-up cost
-    A worker pays an interpreter start plus ``import suite`` (JAX): measured
-    ~1.5-4 s per cell on a shared 2-core machine (see the runner's report).
-    ``cells_per_worker > 1`` reuses a worker for that many cells (the
-    isolation then is per worker, and a killed worker takes only its
-    current cell with it); the default, 1, isolates every cell.
+    A worker pays an interpreter start plus ``import suite`` (JAX) before
+    its cell's clock starts. Measured on the shared 2-core development
+    machine while other jobs kept its load average at 10-13: 3.5-3.8 s of
+    CPU and 15-18 s of wall time per worker start (a trivial cell itself
+    took < 0.1 ms). Eight trivial cells on one worker slot took 142 s with a
+    fresh worker per cell (17.8 s per cell) and 20 s with
+    ``cells_per_worker=8`` (2.6 s per cell, one start amortised). On an idle
+    machine the overhead is about the CPU figure, a few seconds per cell:
+    small against learners trained for minutes, dominant for cheap
+    baselines. ``cells_per_worker > 1`` reuses a worker for that many cells
+    (isolation is then per worker; a killed worker takes only its current
+    cell with it); the default, 1, isolates every cell.
 """
 
 from __future__ import annotations
