@@ -22,7 +22,7 @@ from typing import Callable, Hashable
 import jax
 import numpy as np
 
-__all__ = ["run_compiled", "clear_cache"]
+__all__ = ["callable_key", "clear_cache", "run_compiled"]
 
 _MAX_ENTRIES = 256
 _CACHE: "OrderedDict[Hashable, object]" = OrderedDict()
@@ -33,6 +33,58 @@ _TRACE_ERRORS = (
     jax.errors.TracerBoolConversionError,
     jax.errors.TracerArrayConversionError,
 )
+
+
+class _Same:
+    """Hashable stand-in for an object, equal only to itself (keeps it alive while cached)."""
+
+    __slots__ = ("obj",)
+
+    def __init__(self, obj):
+        self.obj = obj
+
+    def __eq__(self, other):
+        return isinstance(other, _Same) and other.obj is self.obj
+
+    def __hash__(self):
+        return id(self.obj)
+
+
+def _part(obj):
+    try:
+        hash(obj)
+    except TypeError:
+        return _Same(obj)
+    return obj if not callable(obj) else callable_key(obj)
+
+
+def callable_key(f):
+    """A cache key under which two callables that must behave alike compare equal.
+
+    ``system.rhs()`` returns a fresh closure on every call; keying compiled
+    code on the closure object would recompile each time. Plain functions
+    are keyed by their code object, defaults and the objects their closure
+    cells hold; bound methods by (function, instance); ``functools.partial``
+    by (function, arguments). Anything else is keyed by itself.
+    """
+    import functools
+    import types
+
+    if isinstance(f, types.MethodType):
+        return ("method", callable_key(f.__func__), _Same(f.__self__))
+    if isinstance(f, functools.partial):
+        return ("partial", callable_key(f.func), tuple(_part(a) for a in f.args),
+                tuple(sorted((k, _part(v)) for k, v in f.keywords.items())))
+    if isinstance(f, types.FunctionType):
+        cells = ()
+        if f.__closure__:
+            try:
+                cells = tuple(_part(c.cell_contents) for c in f.__closure__)
+            except ValueError:  # an empty cell: fall back to the function object itself
+                return _Same(f)
+        defaults = tuple(_part(d) for d in (f.__defaults__ or ()))
+        return ("function", f.__code__, _Same(f.__globals__), cells, defaults)
+    return _part(f) if not callable(f) else _Same(f)
 
 
 def clear_cache() -> None:
@@ -76,6 +128,7 @@ def run_compiled(key: Hashable, fn: Callable, params, args: tuple):
     ``key`` must identify everything ``fn`` closes over (vector field,
     tableau, static counts). Outputs come back as numpy arrays.
     """
+    key = tuple(callable_key(k) if callable(k) else k for k in key)
     p = _as_param_arrays(params)
     args = tuple(jax.tree_util.tree_map(np.asarray, a) for a in args)
     sig = _signature((p, args))

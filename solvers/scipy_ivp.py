@@ -4,20 +4,19 @@ from __future__ import annotations
 
 import difflib
 import time
-import weakref
-
 import jax
 import numpy as np
 from scipy import integrate
 from scipy.integrate import solve_ivp
 
+from ._compile import callable_key
 from .result import Solution
 
 __all__ = ["SCIPY_METHODS", "solve_scipy"]
 
 SCIPY_METHODS = ("DOP853", "RK45", "RK23", "Radau", "BDF", "LSODA")
 _IMPLICIT = ("Radau", "BDF", "LSODA")
-_JACOBIANS: "weakref.WeakKeyDictionary" = weakref.WeakKeyDictionary()
+_JACOBIANS: dict = {}
 
 
 _COUNTING: dict = {}
@@ -53,14 +52,13 @@ def _check_method(method: str) -> str:
 
 def _jax_jacobian(f, params, y0):
     """``jac(t, y)`` from ``jax.jacfwd`` of ``f``, or None if ``f`` does not trace."""
-    try:
-        cache = _JACOBIANS.setdefault(f, {})
-    except TypeError:  # not weak-referenceable
-        cache = {}
-    jf = cache.get("jac")
+    key = callable_key(f)
+    jf = _JACOBIANS.get(key)
     if jf is None:
+        if len(_JACOBIANS) > 256:
+            _JACOBIANS.clear()
         jf = jax.jit(jax.jacfwd(lambda t, y, p: f(t, y, p), argnums=1))
-        cache["jac"] = jf
+        _JACOBIANS[key] = jf
     p = {k: np.asarray(v, dtype=np.float64) for k, v in params.items()}
     y0 = np.asarray(y0, dtype=np.float64)
     try:

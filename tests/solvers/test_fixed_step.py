@@ -113,3 +113,24 @@ def test_bad_arguments_name_the_problem():
         integrate_fixed(decay, [1.0], 0.0, 0.1, 10, {"k": 1.0}, save_every=3)
     with pytest.raises(ValueError, match="dt"):
         integrate_fixed(decay, [1.0], 0.0, 0.0, 10, {"k": 1.0})
+
+
+def test_fresh_closures_of_the_same_field_share_compiled_code():
+    # a system's rhs() returns a new closure per call; compiled code is keyed on code + closure contents
+    clear_cache()
+    traces = []
+
+    def make_rhs(scale):
+        def rhs(t, y, p):
+            traces.append(1)
+            return -scale * p["k"] * y
+
+        return rhs
+
+    integrate_fixed(make_rhs(1.0), [1.0], 0.0, 0.1, 10, {"k": 1.0})
+    n = len(traces)
+    integrate_fixed(make_rhs(1.0), [1.0], 0.0, 0.1, 10, {"k": 1.0})
+    assert len(traces) == n
+    other = integrate_fixed(make_rhs(2.0), [1.0], 0.0, 0.1, 10, {"k": 1.0})  # different closure value
+    assert len(traces) > n
+    np.testing.assert_allclose(other.y[-1, 0], np.exp(-2.0), rtol=1e-5)  # closed form, RK4 at k dt = 0.2
