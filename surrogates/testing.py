@@ -31,8 +31,10 @@ TINY_PARAMS: dict[str, dict] = {
              "lbfgs_steps": 0, "chunk_size": 30, "holdout_fraction": 0.0},
     "mlp": {"width": 8, "depth": 2, "adam_steps": 60, "lbfgs_steps": 0, "chunk_size": 30,
             "holdout_fraction": 0.0},
-    # Placeholders - the helpers writing these learners fill in their entries:
-    # "neural_ode": {...}, "hnn": {...},
+    # learned vector fields / Hamiltonians (JAX); compiling the training step dominates
+    "neural_ode": {"width": 8, "depth": 1, "window": 4, "substeps": 1, "batch_size": 8, "n_iterations": 40,
+                   "chunk_size": 20},
+    "hnn": {"width": 8, "depth": 1, "batch_size": 16, "n_iterations": 40, "chunk_size": 20},
 }
 
 
