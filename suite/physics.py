@@ -4,8 +4,9 @@ Rules (the harness applies them the same way to every learner):
 
 ``none``
     ``Physics()``: data only. For systems with canonical coordinates the maps
-    to and from them are passed (coordinates, not equations), so that
-    learners which work in canonical coordinates can learn from data alone.
+    to and from them are passed (coordinates, not equations), with the
+    parameter values those maps take (e.g. masses), so that learners which
+    work in canonical coordinates can learn from data alone.
 ``full``
     The system's complete vector field ``system.rhs()`` with the true
     parameter values, plus — where the system has them — its Hamiltonian and
@@ -88,7 +89,8 @@ def build_physics(system, level: str, task: str, options: dict | None = None) ->
         if system.hamiltonian_form is not None:
             # coordinates, not equations: learners that need canonical
             # coordinates (Hamiltonian networks) can still learn from data only
-            return Physics(to_canonical=system.to_canonical, from_canonical=system.from_canonical), info
+            return Physics(params=dict(system.params), to_canonical=system.to_canonical,
+                           from_canonical=system.from_canonical), info
         return Physics(), info
 
     params = dict(system.params)
