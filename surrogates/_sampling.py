@@ -30,7 +30,8 @@ def analogue_history(y0, train, mean, scale, length, stride=1):
 
     For each start state, finds the nearest training sample (in standardised
     coordinates) that has at least ``length`` samples before it, and returns
-    those samples followed by the start state itself, in original units at the
+    those samples shifted by the start state's offset from that neighbour (so that
+    they end at the start state), in original units at the
     training spacing: shape (B, length + 1, d); ``length`` is capped by the
     longest training trajectory. ``train`` is a list of
     standardised trajectories (n, d). ``stride`` is unused beyond validation
@@ -51,7 +52,9 @@ def analogue_history(y0, train, mean, scale, length, stride=1):
     out = np.empty((z0.shape[0], length + 1, z0.shape[1]))
     for b, k in enumerate(np.atleast_1d(idx)):
         i, j = where[int(k)]
-        out[b] = train[i][j - length:j + 1] * scale + mean
+        seg = train[i][j - length:j + 1]
+        # shift the borrowed samples so that they end exactly at the start state
+        out[b] = (seg + (z0[b] - seg[-1])) * scale + mean
     out[:, -1] = y0
     return out
 
