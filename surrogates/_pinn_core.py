@@ -52,7 +52,7 @@ from .base import Learner
 from .data import Budget, Physics, TrainingData
 from .errors import DivergedError, InvalidDataError, NotApplicableError
 
-__all__ = ["TimeNetworkLearner", "TRACE_COUNTS"]
+__all__ = ["TimeNetworkLearner", "TRACE_COUNTS", "causal_weights"]
 
 #: How many times each jitted function was traced (compiled), by name.
 TRACE_COUNTS: Counter = Counter()
@@ -161,13 +161,18 @@ def _residual_sq(cfg, vector_field, params, batch):
     return jnp.mean(((dydt - f) / scale) ** 2, axis=1)
 
 
+def causal_weights(chunk_losses, epsilon):
+    """``w_i = exp(-epsilon * sum_{k<i} L_k)`` for consecutive time chunks (Wang, Sankaran & Perdikaris 2022, eq. 3.5)."""
+    earlier = jnp.cumsum(chunk_losses) - chunk_losses
+    return jnp.exp(-epsilon * earlier)
+
+
 def _physics_loss(cfg, vector_field, params, batch, causal):
     r2 = _residual_sq(cfg, vector_field, params, batch)
     if not causal or cfg.causal_epsilon <= 0.0:
         return jnp.mean(r2)
     chunk_losses = jnp.mean(r2.reshape(cfg.causal_chunks, -1), axis=1)
-    earlier = jnp.cumsum(chunk_losses) - chunk_losses
-    w = jax.lax.stop_gradient(jnp.exp(-cfg.causal_epsilon * earlier))
+    w = jax.lax.stop_gradient(causal_weights(chunk_losses, cfg.causal_epsilon))
     return jnp.mean(w * chunk_losses)
 
 

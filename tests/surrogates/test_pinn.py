@@ -141,6 +141,21 @@ def test_budget_caps_iterations():
     assert model.n_adam_steps_ == 500   # shared in proportion 1500:300
 
 
+def test_causal_weights():
+    # Wang, Sankaran & Perdikaris (2022): w_i = exp(-eps * sum of the losses of earlier chunks)
+    w = np.asarray(_pinn_core.causal_weights(jnp.array([1.0, 2.0, 3.0]), 0.5))
+    np.testing.assert_allclose(w, [1.0, np.exp(-0.5), np.exp(-1.5)], rtol=1e-14)
+
+
+def test_annealing_and_causal_weighting_train():
+    # both switched on; measured: rel. L2 3.5e-3 after 1,500 Adam steps, weight 0.01 -> 0.0038
+    physics = Physics(level="full", vector_field=oscillator, params={"omega": OMEGA})
+    model = PINN(**SMALL, adam_steps=1500, lbfgs_steps=0, loss_balancing="annealing",
+                 causal_epsilon=1.0).fit(oscillator_data(40), physics, seed=0)
+    assert rel_l2(model.predict(T_TEST), oscillator_solution(T_TEST)) < 2e-2
+    assert 0.0 < model.physics_weight_ != 0.01   # the annealing moved the weight
+
+
 def lorenz63(t, y, p):
     """Lorenz (1963), written here so that the test does not depend on the suite."""
     return jnp.stack([p["sigma"] * (y[1] - y[0]), y[0] * (p["rho"] - y[2]) - y[1], y[0] * y[1] - p["beta"] * y[2]])
@@ -154,7 +169,8 @@ def test_pinn_identifies_lorenz_rho():
                     method="DOP853", t_eval=t, rtol=1e-12, atol=1e-12)
     data = TrainingData.from_arrays(t, sol.y.T)
     physics = Physics(level="full", vector_field=lorenz63, params={**p, "rho": 20.0}, unknown=("rho",))
-    model = PINN(width=64, depth=4, n_collocation=1024, fourier_features=4,
-                 adam_steps=4000, lbfgs_steps=1500).fit(data, physics, seed=0)
+    model = PINN(width=32, depth=3, n_collocation=512, fourier_features=4,
+                 adam_steps=3000, lbfgs_steps=1000).fit(data, physics, seed=0)
+    print("lorenz rho estimate", model.identified_params())
     rho = model.identified_params()["rho"]
     assert abs(rho - 28.0) / 28.0 < 0.02, rho   # 2 % (issue requirement); Lorenz (1963) rho = 28
