@@ -5,7 +5,6 @@ from __future__ import annotations
 import jax
 import jax.numpy as jnp
 import numpy as np
-from jax import lax
 
 from ._compile import run_compiled
 from .fixed_step import _n_saved, strided_loop

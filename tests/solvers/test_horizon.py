@@ -3,7 +3,7 @@ import pytest
 
 from solvers import reference_trajectory
 
-from _solver_fields import LORENZ_PARAMS, LORENZ_SPECTRUM, lorenz63, oscillator
+from _solver_fields import LORENZ_PARAMS, lorenz63, oscillator
 
 
 def test_lorenz63_reference_horizon_is_finite_and_positive():
