@@ -30,7 +30,8 @@ class LocalLinear(Learner):
         Neighbours in each local fit (at least ``q * d + 1`` for a
         well-determined fit; the ridge term handles fewer).
     ridge : float, default 1e-8
-        Ridge penalty on the slope ``B``, relative to the summed weights.
+        Ridge penalty on the slope ``B``, relative to the weighted mean
+        squared distance of the neighbours (0: plain least squares).
 
     Attributes
     ----------
@@ -102,7 +103,8 @@ class LocalLinear(Learner):
             sw = np.sqrt(w)[:, None]
             A = np.hstack([np.ones((k, 1)), X]) * sw
             rhs = Y * sw
-            lam = np.sqrt(float(self.ridge) * w.sum())
+            # ridge relative to the weighted spread of the neighbours, so it does not depend on units
+            lam = np.sqrt(float(self.ridge) * np.sum(w[:, None] * X ** 2) / max(X.shape[1], 1))
             if lam > 0:  # ridge on the slope only
                 pen = np.hstack([np.zeros((X.shape[1], 1)), lam * np.eye(X.shape[1])])
                 A = np.vstack([A, pen])
