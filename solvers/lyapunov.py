@@ -32,9 +32,10 @@ class LyapunovResult:
         Wall-clock seconds of the run (compilation excluded).
     n_steps : int
         Steps taken, transient included.
-    history : ndarray, shape (n_renorm, k)
-        Running estimates after each re-orthonormalisation (convergence plots).
-    history_t : ndarray, shape (n_renorm,)
+    history : ndarray, shape (n_rows, k)
+        Running estimates (convergence plots): after every
+        re-orthonormalisation, thinned to at most 2,000 rows.
+    history_t : ndarray, shape (n_rows,)
         Averaging time behind each row of ``history``.
     compile_seconds : float
         Seconds spent compiling.
@@ -110,7 +111,7 @@ def _default_step(f):
     return step
 
 
-def _benettin(step, y0, t0, dt, params, *, n_transient, n_blocks, renorm_every, k):
+def _benettin(step, y0, t0, dt, params, *, n_transient, n_rows, blocks_per_row, renorm_every, k):
     d = y0.shape[0]
     orth = _gram_schmidt if k <= 8 else _qr
 
@@ -132,12 +133,18 @@ def _benettin(step, y0, t0, dt, params, *, n_transient, n_blocks, renorm_every, 
         i0 = n_transient + b * renorm_every
         (y, V, _), _ = lax.scan(tangent, (y, V, i0), jnp.arange(renorm_every))
         V, logs = orth(V)
-        acc = acc + logs
-        return (y, V, acc), acc
+        return (y, V, acc + logs), None
+
+    def row(carry, r):
+        carry, _ = lax.scan(block, carry, r * blocks_per_row + jnp.arange(blocks_per_row))
+        return carry, carry[2]
 
     V0 = jnp.eye(d, k, dtype=y0.dtype)
-    (y, V, acc), hist = lax.scan(block, (y, V0, jnp.zeros(k, y0.dtype)), jnp.arange(n_blocks))
+    (y, V, acc), hist = lax.scan(row, (y, V0, jnp.zeros(k, y0.dtype)), jnp.arange(n_rows))
     return acc, hist, y
+
+
+_HISTORY_ROWS = 2000
 
 
 def _counts(dt, t_end, transient, renorm_every):
@@ -154,7 +161,11 @@ def _counts(dt, t_end, transient, renorm_every):
     n_transient = int(round(transient / dt))
     n_avg = int(round((t_end - transient) / dt))
     n_blocks = max(n_avg // renorm_every, 1)
-    return n_transient, n_blocks, renorm_every
+    # the running estimate is kept at most _HISTORY_ROWS times; the averaging time is rounded down to a
+    # whole number of rows (a loss below 1 / _HISTORY_ROWS of it)
+    blocks_per_row = -(-n_blocks // _HISTORY_ROWS)  # ceil: at most _HISTORY_ROWS rows
+    n_rows = n_blocks // blocks_per_row
+    return n_transient, n_rows, blocks_per_row, renorm_every
 
 
 def _run(f, y0, params, dt, t_end, transient, renorm_every, k, t0, step, name):
@@ -166,7 +177,8 @@ def _run(f, y0, params, dt, t_end, transient, renorm_every, k, t0, step, name):
     if not 1 <= k <= d:
         raise ValueError(f"n_exponents must be between 1 and the dimension {d}, got {k}")
     dt, t_end, transient = float(dt), float(t_end), float(transient)
-    n_transient, n_blocks, renorm_every = _counts(dt, t_end, transient, renorm_every)
+    n_transient, n_rows, blocks_per_row, renorm_every = _counts(dt, t_end, transient, renorm_every)
+    n_blocks = n_rows * blocks_per_row
     if step is None:
         if f is None:
             raise ValueError("give a vector field f or a one-step map step")
@@ -175,14 +187,14 @@ def _run(f, y0, params, dt, t_end, transient, renorm_every, k, t0, step, name):
         stepper, step_key = step, ("user", step)
 
     def fn(p, y0_, t0_, dt_):
-        return _benettin(stepper, y0_, t0_, dt_, p, n_transient=n_transient, n_blocks=n_blocks,
-                         renorm_every=renorm_every, k=k)
+        return _benettin(stepper, y0_, t0_, dt_, p, n_transient=n_transient, n_rows=n_rows,
+                         blocks_per_row=blocks_per_row, renorm_every=renorm_every, k=k)
 
-    key = (name, step_key, k, n_transient, n_blocks, renorm_every)
+    key = (name, *step_key, k, n_transient, n_rows, blocks_per_row, renorm_every)
     (acc, hist, y_end), compile_s, seconds = run_compiled(
         key, fn, params, (y0, np.float64(t0), np.float64(dt)))
     t_avg = n_blocks * renorm_every * dt
-    hist_t = dt * renorm_every * np.arange(1, n_blocks + 1)
+    hist_t = dt * renorm_every * blocks_per_row * np.arange(1, n_rows + 1)
     history = np.asarray(hist) / hist_t[:, None]
     exps = np.asarray(acc) / t_avg
     status, message = "success", ""
