@@ -815,7 +815,11 @@ _CHECKS: tuple[Callable, ...] = (
 )
 
 CHECK_NAMES = tuple(c.__name__ for c in _CHECKS)
-__all__ += list(CHECK_NAMES) + ["CHECK_NAMES"]
+#: Checks that never fit the learner (cheap for any learner).
+CHECKS_WITHOUT_FIT = ("constructor_stores_only_params", "get_params_round_trip", "init_no_arrays_or_random",
+                      "unfitted_raises", "nan_training_data", "too_few_samples", "unsupported_physics",
+                      "identify_applicability")
+__all__ += list(CHECK_NAMES) + ["CHECK_NAMES", "CHECKS_WITHOUT_FIT"]
 
 
 # =====================================================================

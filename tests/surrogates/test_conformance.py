@@ -16,7 +16,7 @@ from surrogates import Capabilities, InvalidDataError, Learner
 from surrogates import conformance as kit
 from surrogates.conformance import CheckFailed, CheckSkipped, check_learner, iter_checks, parametrize_with_checks
 from surrogates.registry import LearnerLoadError, available_learners, learner_class, make_learner
-from surrogates.testing import TINY_PARAMS, tiny_params
+from surrogates.testing import KIT_SLOW_LEARNERS, TINY_PARAMS, tiny_params
 
 
 class Good(Learner):
@@ -303,9 +303,10 @@ def test_kit_problems_are_integrated_accurately():
 
 
 # ----------------------------------------------------------------------------
-# every registered learner that imports passes the kit; those without a tiny
-# entry in surrogates.testing.TINY_PARAMS run only with -m slow (their defaults
-# are benchmark-sized).
+# every registered learner that imports passes the kit. The fitting checks of
+# learners without a tiny entry in surrogates.testing.TINY_PARAMS (their
+# defaults are benchmark-sized) and of KIT_SLOW_LEARNERS (JAX compiles) run
+# only with -m slow; the checks that need no fit run for every learner.
 # ----------------------------------------------------------------------------
 
 def _registered_cases():
@@ -315,11 +316,25 @@ def _registered_cases():
             learner_class(name)
         except LearnerLoadError:
             continue  # reported by `lyapbench learners`; not this test's business
-        marks = () if name in TINY_PARAMS else (pytest.mark.slow,)
+        heavy = name not in TINY_PARAMS or name in KIT_SLOW_LEARNERS
         model = make_learner(name, **tiny_params(name))
         for check_name, check in iter_checks(model):
+            marks = (pytest.mark.slow,) if heavy and check_name not in kit.CHECKS_WITHOUT_FIT else ()
             cases.append(pytest.param(check, id=f"{name}-{check_name}", marks=marks))
     return cases
+
+
+def test_checks_without_fit_do_not_fit():
+    class Unfittable(Good):
+        def _fit(self, data, physics, budget, seed):
+            raise AssertionError("fit reached")
+
+    checks = dict(iter_checks(Unfittable()))
+    for name in kit.CHECKS_WITHOUT_FIT:
+        try:
+            checks[name]()
+        except CheckSkipped:
+            pass
 
 
 @pytest.mark.parametrize("check", _registered_cases())
