@@ -103,6 +103,18 @@ class _Progress:
             self.bar.close()
 
 
+def _check_function(target: str) -> None:
+    """Import the cell function here first: a typo is one error, not a failed worker per cell."""
+    from suite.executors._worker import _load_function
+
+    try:
+        func = _load_function(target)
+    except (ImportError, AttributeError, ValueError) as exc:
+        raise ValueError(f"cell function {target!r} cannot be imported ({type(exc).__name__}: {exc})") from None
+    if not callable(func):
+        raise ValueError(f"cell function {target!r} is not callable")
+
+
 def run_grid(grid, store=None, *, executor: str = "local", workers: int | None = None,
              scheduler: str | None = None, retries: int = 1, cells_per_worker: int = 1,
              function=DEFAULT_CELL_FUNCTION, grace: float | None = None, progress=None) -> RunSummary:
@@ -143,6 +155,7 @@ def run_grid(grid, store=None, *, executor: str = "local", workers: int | None =
         raise ValueError(f"workers must be >= 1, got {workers}")
     ex = make_executor(executor, function, workers=workers, scheduler=scheduler, retries=retries,
                        cells_per_worker=cells_per_worker, grace=grace)
+    _check_function(ex.function)
     cells = grid.cells()
     keyed = [(spec.key(), spec) for spec in cells]
     store_path = Path(store) if store is not None else default_store_path(grid)

@@ -187,3 +187,15 @@ learners = ["{M}:PolynomialInTime"]
         assert main(["run", str(grid), "--store", str(store), "--quiet", "--cell-function", CELL]) == 2
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "in use by another lyapbench run" in err
+
+
+def test_unimportable_cell_function_is_refused_before_the_store(tmp_path):
+    grid = _write(tmp_path, f"""
+[grid]
+systems = ["lorenz63"]
+tasks = ["reconstruct"]
+learners = ["{M}:PolynomialInTime"]
+""")
+    with pytest.raises(ValueError, match="cannot be imported"):
+        run_grid(grid, tmp_path / "s.sqlite", function="harness.bad_learners:no_such_function")
+    assert not (tmp_path / "s.sqlite").exists()
