@@ -18,6 +18,15 @@ from .errors import (
     NotFittedError,
     OverBudgetError,
 )
+from .registry import (
+    LearnerClashError,
+    LearnerLoadError,
+    UnknownLearnerError,
+    available_learners,
+    learner_class,
+    learner_info,
+    make_learner,
+)
 
 __all__ = [
     "PHYSICS_LEVELS",
@@ -28,11 +37,18 @@ __all__ = [
     "DivergedError",
     "InvalidDataError",
     "Learner",
+    "LearnerClashError",
     "LearnerError",
+    "LearnerLoadError",
     "NotApplicableError",
     "NotFittedError",
     "OverBudgetError",
     "Physics",
     "TrainingData",
     "Trajectory",
+    "UnknownLearnerError",
+    "available_learners",
+    "learner_class",
+    "learner_info",
+    "make_learner",
 ]
