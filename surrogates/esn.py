@@ -2,11 +2,9 @@
 
 from __future__ import annotations
 
-import warnings
-
 import numpy as np
 import scipy.sparse as sp
-from scipy.linalg import LinAlgWarning, solve
+from scipy.linalg import eigh
 from scipy.sparse.linalg import eigs
 
 from ._sampling import analogue_history, refine, steps_per_output
@@ -179,23 +177,33 @@ class EchoStateNetwork(Learner):
             wash = min(washout, (u.shape[0] - 1) // 2)
             if u.shape[0] - 1 - wash < 1 or used >= max_steps:
                 continue
-            r = np.zeros((n_nodes, 1))
-            feats = []
-            targets = []
-            for k in range(u.shape[0] - 1):
-                r = self._step(r, u[k][:, None])
-                if k >= wash:
-                    feats.append(r[:, 0])
-                    targets.append(u[k + 1])
-                    used += 1
-                    if used >= max_steps:
-                        break
-                if clock.expired():
+            n_in = min(u.shape[0] - 1, wash + max_steps - used)  # inputs to feed
+            # input drive of every step at once; the loop only does A r + drive, tanh
+            drive = u[:n_in] @ self._w_in_.T + self._b_
+            states = np.empty((n_in, n_nodes))
+            a = float(self.leak_rate)
+            r = np.zeros(n_nodes)
+            fed = n_in
+            for k in range(n_in):
+                pre = self._a_ @ r + drive[k]
+                r = np.tanh(pre) if a == 1.0 else (1.0 - a) * r + a * np.tanh(pre)
+                states[k] = r
+                if k % 256 == 255 and clock.expired():
+                    fed = k + 1
                     break
-            if feats:
-                phi = self._features(np.array(feats).T)  # (N + 1, n)
-                gram += phi @ phi.T
-                cross += phi @ np.array(targets)
+            if fed > wash:
+                phi = states[wash:fed]  # (n, N): readout features in place, constant added blockwise
+                if self.quadratic_readout:
+                    phi[:, 0::2] **= 2
+                target = u[wash + 1:fed + 1]
+                gram[:-1, :-1] += phi.T @ phi
+                col = phi.sum(axis=0)
+                gram[:-1, -1] += col
+                gram[-1, :-1] += col
+                gram[-1, -1] += fed - wash
+                cross[:-1] += phi.T @ target
+                cross[-1] += target.sum(axis=0)
+                used += fed - wash
             if clock.expired():
                 break
         if used < 2:
@@ -204,15 +212,10 @@ class EchoStateNetwork(Learner):
             raise InvalidDataError(
                 "the echo state network needs trajectories of at least 3 samples")
         self.bound_ = 100.0 * (1.0 + max(float(np.max(np.abs(u))) for u in self._train_inputs_))
-        gram[np.diag_indices_from(gram)] += float(self.ridge)
-        try:
-            with warnings.catch_warnings():
-                # a small ridge leaves the normal equations ill-conditioned; the
-                # regularised Cholesky solve still gives a usable readout
-                warnings.simplefilter("ignore", LinAlgWarning)
-                w = solve(gram, cross, assume_a="pos")
-        except np.linalg.LinAlgError:
-            w = np.linalg.lstsq(gram, cross, rcond=None)[0]
+        # ridge solution through the eigen-decomposition of the (symmetric) Gram matrix:
+        # stable even when a small ridge leaves the normal equations near-singular
+        lam, vec = eigh(gram)
+        w = vec @ ((vec.T @ cross) / (np.maximum(lam, 0.0) + float(self.ridge))[:, None])
         if not np.all(np.isfinite(w)):
             raise DivergedError("the readout fit produced non-finite weights")
         self.w_out_ = w.T
