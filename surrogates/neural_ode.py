@@ -127,6 +127,18 @@ class NeuralODE(Learner):
     Rollouts integrate the learned field with RK4 at (about) the training step
     ``median interval / substeps``, saving at the requested spacing.
 
+    Compilation: the training chunk and the rollout are compiled once per
+    static configuration (network shape, activation, sub-steps, batch size,
+    clip, the known vector field *callable*) and array shapes, and kept in a
+    module-level cache; physics parameter values are traced, so new values do
+    not recompile (a field that needs a parameter as a Python number is
+    detected on first trace and compiled with its values baked in). Passing
+    the same vector-field object to successive fits reuses the compiled code;
+    a freshly created closure compiles anew. Samples: regular or irregular
+    (every observation interval is crossed with its own sub-steps); windows
+    are cut from trajectories with at least ``window + 1`` samples
+    (``window`` is lowered to fit the longest trajectory).
+
     Parameters
     ----------
     width, depth : int

@@ -181,3 +181,27 @@ def test_divergence_is_a_typed_error(data):
                                 budget=Budget(max_iterations=1))
     with pytest.raises(DivergedError):  # rate 10 over 200 time units: exp(2000) overflows
         m.rollout(np.array([[1.0, 1.0]]), np.arange(0.0, 200.0, 0.1))
+
+
+@pytest.mark.slow
+def test_time_input_for_a_non_autonomous_field():
+    """x' = 0.2 t - 1 (closed form x0 + 0.1 t^2 - t) from three starts: only a field of t can fit all three.
+
+    Rollout over t in [5, 8] from a training state. Asserted: error with the
+    time input < 0.05 and at least 3x below the autonomous model's (same
+    budget); this also checks that the rollout's start time reaches the
+    network. Measured (seed 0): 0.018 with the time input, 0.82 without.
+    """
+    t = np.arange(0.0, 10.0, 0.1)
+    trajs = tuple(Trajectory(t, (x0 + 0.1 * t ** 2 - t)[:, None]) for x0 in (-1.0, 0.0, 1.0))
+    data = TrainingData(trajs)
+    tt = np.arange(5.0, 8.0 + 1e-9, 0.1)
+    y0 = trajs[1].y[50]  # t = 5
+    ref = (0.1 * tt ** 2 - tt)[:, None]
+    errs = {}
+    for time_input in (True, False):
+        m = NeuralODE(**{**CONFIG, "time_input": time_input}).fit(data, Physics(), seed=0)
+        errs[time_input] = float(np.max(np.abs(m.rollout(y0[None], tt)[0] - ref)))
+    print("time input / autonomous:", errs)
+    assert errs[True] < 0.05
+    assert 3.0 * errs[True] < errs[False]
