@@ -3,7 +3,8 @@
 Order of work, so that a bad grid can never touch a store:
 
 1. load and validate the grid in full (:func:`suite.grid.load_grid`);
-2. build the executor (checks its arguments; starts nothing);
+2. build the executor and check it (its arguments, the cell function's
+   import, a remote Dask scheduler's reachability; starts no worker);
 3. open or create the store, taking its run lock (:class:`suite.store.Store`);
 4. skip every cell whose key is already in the store (resume is the
    default: re-running a grid runs only what is missing);
@@ -156,6 +157,7 @@ def run_grid(grid, store=None, *, executor: str = "local", workers: int | None =
     ex = make_executor(executor, function, workers=workers, scheduler=scheduler, retries=retries,
                        cells_per_worker=cells_per_worker, grace=grace)
     _check_function(ex.function)
+    ex.check()
     cells = grid.cells()
     keyed = [(spec.key(), spec) for spec in cells]
     store_path = Path(store) if store is not None else default_store_path(grid)

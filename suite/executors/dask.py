@@ -12,9 +12,8 @@ the loaded shared 2-core machine (see :mod:`suite.executors.local`): eight
 trivial cells on a one-worker LocalCluster took 233 s including the cluster
 start (29 s per cell) against 142 s on the local executor.
 
-A scheduler address that cannot be reached is an error (exit 2) raised when
-the run starts, after the store has been opened (it is created if new, but
-no manifest or cell is written).
+A scheduler address that cannot be reached is an error (exit 2) raised
+before the store is opened (:meth:`DaskExecutor.check`).
 
 The executor uses an existing cluster (``scheduler="tcp://host:port"``) or
 starts ``LocalCluster(n_workers=N, threads_per_worker=1, processes=True,
@@ -82,13 +81,23 @@ class DaskExecutor:
         self.retries = max(0, int(retries))
         self.grace = grace
 
+    def check(self) -> None:
+        """Fail early (ValueError) when ``distributed`` is missing or the scheduler cannot be reached."""
+        try:
+            import distributed  # noqa: F401
+        except ImportError:
+            raise ValueError("the dask executor needs the 'distributed' package") from None
+        if self.scheduler:
+            client, _ = self._client()
+            client.close()
+
     def _client(self):
         from distributed import Client, LocalCluster
 
         if self.scheduler:
             try:
                 return Client(self.scheduler, timeout="20s"), None
-            except (OSError, TimeoutError) as exc:
+            except (OSError, TimeoutError, ValueError) as exc:
                 raise ValueError(f"cannot reach the Dask scheduler at {self.scheduler!r} ({exc})") from None
         cluster = LocalCluster(n_workers=self.workers, threads_per_worker=1, processes=True,
                                dashboard_address=None, host="127.0.0.1")

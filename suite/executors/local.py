@@ -224,6 +224,9 @@ class LocalExecutor:
         self.grace = grace
         self.start_timeout = float(start_timeout)
 
+    def check(self) -> None:
+        """Nothing to check before the store is opened (workers start with the run)."""
+
     def _grace(self, budget: float) -> float:
         return self.grace if self.grace is not None else max(2.0, 0.1 * budget)
 
