@@ -186,14 +186,38 @@ def main(argv=None):
         # start at the last reference state of the window, run 2 s past it
         k0 = N_REF - 1
         tf = t_all[k0:]
+        ref = y_all[k0:]
+        horizons = (0.1, 0.5, 1.0, 2.0)
+        at = [min(len(tf) - 1, int(round(h / DT))) for h in horizons]
+
+        def errs_at(pred):
+            e = np.linalg.norm(pred - ref, axis=1) / np.linalg.norm(ref, axis=1)
+            return [float(e[i]) for i in at]
+
+        t_star = float(pinn.matched_times(y_all[k0][None, :])[0])
         roll = pinn.rollout(y_all[k0][None, :], tf)[0]
-        errs = np.linalg.norm(roll - y_all[k0:], axis=1) / np.linalg.norm(y_all[k0:], axis=1)
-        forecast = {"start_time": float(tf[0]), "horizons_s": [0.1, 0.5, 1.0, 2.0],
-                    "relative_error": [float(errs[min(len(errs) - 1, int(round(h / DT)))])
-                                       for h in (0.1, 0.5, 1.0, 1.999)],
-                    "note": "network evaluated past its window from the nearest point of its own trajectory"}
-        print("forecast relative error at +0.1, +0.5, +1, +2 s:",
-              ", ".join(f"{e:.2e}" for e in forecast["relative_error"]))
+        extrap = pinn.predict(tf)       # the network at absolute times past its window
+        forecast = {"start_time": float(tf[0]), "horizons_s": list(horizons),
+                    "rollout_relative_error": errs_at(roll), "rollout_replay_from_t": t_star,
+                    "extrapolation_relative_error": errs_at(extrap),
+                    "note": ("rollout = replay of the learned trajectory from the time where it passes "
+                             "closest to the start state, network extrapolation once past the window; "
+                             "extrapolation = the network evaluated at absolute times after the window")}
+        print(f"rollout (replay from t*={t_star:.3f} s) relative error at +0.1, +0.5, +1, +2 s:",
+              ", ".join(f"{e:.2e}" for e in forecast["rollout_relative_error"]))
+        print("network extrapolation relative error at +0.1, +0.5, +1, +2 s:",
+              ", ".join(f"{e:.2e}" for e in forecast["extrapolation_relative_error"]))
+
+    out = Path(args.out)
+    if args.only != "all" and not args.quick and out.with_suffix(".json").exists():
+        # a partial rerun replaces its own rows and keeps the others of the last full run
+        old = json.loads(out.with_suffix(".json").read_text())
+        mine = {r["learner"] for r in rows}
+        rows = [r for r in old.get("rows", []) if r["learner"] not in mine] + rows
+        order = ["pinn 1%", "mlp 1%", "spline 1%", "pinn 0.1%", "spline 0.1%", "pinn 10.0%", "spline 10.0%"]
+        rows.sort(key=lambda r: order.index(r["learner"]) if r["learner"] in order else len(order))
+        if forecast is None:
+            forecast = old.get("forecast")
 
     result = {"benchmark": "pinn_double_pendulum", "system_source": source, "params": p,
               "y0": Y0.tolist(), "window_s": [float(t[0]), float(t[-1])], "reference_dt": DT,
@@ -209,7 +233,6 @@ def main(argv=None):
     table = "\n".join(lines)
     print(table)
     if not args.quick:
-        out = Path(args.out)
         out.parent.mkdir(parents=True, exist_ok=True)
         out.with_suffix(".json").write_text(json.dumps(result, indent=1, default=str) + "\n")
         md = [f"# PINN on the double pendulum ({result['date_utc']})", "",
@@ -219,10 +242,21 @@ def main(argv=None):
               f"System: {source}; y0 = (pi/4, pi/4, 0, 0); window {t[0]:g}–{t[-1]:g} s, reference every {DT} s "
               f"(DOP853 rtol 1e-12); held-out relative L2 over all four variables; target {TARGET:g}.", "",
               table, ""]
-        if forecast:
-            md.append("Forecast past the window (pinn 1 %, from the state at the window end): relative error "
-                      + ", ".join(f"{e:.2e} at +{h:g} s" for e, h in zip(forecast["relative_error"],
-                                                                           forecast["horizons_s"])) + ".")
+        if forecast and "rollout_relative_error" in forecast:
+            hs = forecast["horizons_s"]
+            md.append("Forecast past the window (pinn 1 %, from the reference state at the window end; "
+                      "relative error of the state):")
+            md.append("")
+            md.append("| | " + " | ".join(f"+{h:g} s" for h in hs) + " |")
+            md.append("| --- |" + " --- |" * len(hs))
+            md.append(f"| rollout (replays its trajectory from t* = {forecast['rollout_replay_from_t']:.3f} s) | "
+                      + " | ".join(f"{e:.2e}" for e in forecast["rollout_relative_error"]) + " |")
+            md.append("| network extrapolated past the window | "
+                      + " | ".join(f"{e:.2e}" for e in forecast["extrapolation_relative_error"]) + " |")
+            md.append("")
+            md.append("The rollout is only as good as the recurrence it finds: this orbit (45°/45° at rest) "
+                      "comes back close to its end state inside the window, so the replay tracks for a while; "
+                      "the network's own extrapolation is what a PINN offers past its data.")
         out.with_suffix(".md").write_text("\n".join(md) + "\n")
     return result
 

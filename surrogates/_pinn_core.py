@@ -50,7 +50,7 @@ import optax
 from ._nets import apply_mlp, count_params, init_mlp
 from .base import Learner
 from .data import Budget, Physics, TrainingData
-from .errors import DivergedError, InvalidDataError, NotApplicableError
+from .errors import DivergedError, InvalidDataError, NotApplicableError, OverBudgetError
 
 __all__ = ["TimeNetworkLearner", "TRACE_COUNTS", "causal_weights"]
 
@@ -467,6 +467,8 @@ class TimeNetworkLearner(Learner):
                     break
         if stopped == "diverged" and len(history) <= 1 and best["params"] is params0:
             raise DivergedError(f"{type(self).__name__}: training loss became non-finite at once")
+        if steps_done == 0 and n_adam + n_lbfgs > 0:
+            raise OverBudgetError(f"{type(self).__name__}: the time budget ran out before the first training step")
 
         final = best["params"]
         if not all(np.all(np.isfinite(np.asarray(x))) for x in jax.tree_util.tree_leaves(final)):
@@ -500,14 +502,24 @@ class TimeNetworkLearner(Learner):
     def _predict(self, t):
         return self._evaluate(t)
 
-    def _rollout(self, y0, t, history):
+    def matched_times(self, y0) -> np.ndarray:
+        """Times in the training window where the learned trajectory passes closest to each start state.
+
+        Scaled Euclidean distance on a grid of ``max(2000, 20 n)`` points
+        (``n`` training samples); the first of equal minima. This is where
+        :meth:`rollout` starts its replay.
+        """
+        self._check_fitted()
         t0, t1 = self.window_
         n_grid = max(2_000, 20 * self.n_samples_)
         grid = np.linspace(t0, t1, n_grid)
         traj = (self._evaluate(grid) - self.mean_) / self.scale_
-        z0 = (np.asarray(y0) - self.mean_) / self.scale_
+        z0 = (np.atleast_2d(np.asarray(y0, dtype=float)) - self.mean_) / self.scale_
         d2 = ((traj[None, :, :] - z0[:, None, :]) ** 2).sum(axis=2)
-        t_star = grid[np.argmin(d2, axis=1)]
+        return grid[np.argmin(d2, axis=1)]
+
+    def _rollout(self, y0, t, history):
+        t_star = self.matched_times(y0)
         rel = np.asarray(t, dtype=float) - float(t[0])
         out = np.stack([self._evaluate(ts + rel) for ts in t_star])
         out[:, 0] = y0      # the state at t[0] is given; the network's own value there may differ
