@@ -36,8 +36,9 @@ class EchoStateNetwork(Learner):
     A forecast first *listens*: the reservoir is driven with the ``history``
     given to :meth:`rollout`, then runs autonomously on its own output. With no
     history, it listens to the training samples that precede the training
-    state nearest to the start state, with the start state substituted at the
-    end (an analogue warm-up; poorer than the true history).
+    state nearest to the start state, shifted to end at the start state (an
+    analogue warm-up; poorer than the true history); a history shorter than
+    ``washout`` is lengthened the same way at its old end.
 
     Needs equally spaced samples; output spacing must be a whole multiple of
     the training spacing.
@@ -235,6 +236,12 @@ class EchoStateNetwork(Learner):
             u_hist = (history - self.mean_) / self.scale_
             if stride > 1:
                 u_hist = refine(u_hist, stride)
+            short = int(self.washout) - (u_hist.shape[1] - 1)
+            if short > 0:
+                # a short history: listen first to an analogue that ends at its oldest state
+                first = u_hist[:, 0] * self.scale_ + self.mean_
+                pre = analogue_history(first, self._train_inputs_, self.mean_, self.scale_, short)
+                u_hist = np.concatenate([(pre[:, :-1] - self.mean_) / self.scale_, u_hist], axis=1)
         # listen: inputs before the start, then the start state itself
         r = np.zeros((self._a_.shape[0], B))
         for k in range(u_hist.shape[1]):

@@ -143,3 +143,14 @@ def test_full_reservoir_median_vpt():
     print(f"\nESN 1000 nodes: training {seconds:.2f} s, median VPT {np.median(vpts):.2f} Lyapunov times, "
           f"segments {np.round(vpts, 1).tolist()}")
     assert np.median(vpts) >= 10.0, vpts
+
+
+def test_short_history_is_lengthened_by_an_analogue(series, moderate):
+    # A history of two samples is too short to synchronise the reservoir; it is extended at
+    # its old end by an analogue from the training data, and the forecast still holds for at
+    # least one Lyapunov time (measured: several).
+    t, y = series
+    model, data = moderate
+    s = 3_300
+    out = model.rollout(y[[s]], DT * np.arange(200), y[None, s - 1:s + 1])
+    assert valid_prediction_time(out[0], y[s:s + 200], data.scale, DT) >= 1.0
