@@ -31,6 +31,8 @@ class _Library:
         self.omegas = tuple(float(w) for w in (time_frequencies or ()))
         self.d = d
         self.names = [self._monomial_name(e, names) for e in self.exponents]
+        # integer power of each state in each monomial, (n_monomials, d)
+        self.powers = np.array([[e.count(i) for i in range(d)] for e in self.exponents], dtype=float).reshape(-1, d)
         if self.trig:
             self.names += [f"sin({n})" for n in names] + [f"cos({n})" for n in names]
         for w in self.omegas:
@@ -49,23 +51,31 @@ class _Library:
     def __len__(self):
         return len(self.names)
 
-    def __call__(self, t, x):
-        """Θ for states ``x`` (N, d) at times ``t`` (N,) -> (N, n_terms)."""
+    def __call__(self, t, x, columns=None):
+        """Θ for states ``x`` (N, d) at times ``t`` (N,) -> (N, n_terms).
+
+        ``columns`` (boolean mask over terms) limits the work to those terms;
+        the others are returned as zeros.
+        """
         x = np.asarray(x, dtype=float)
-        cols = []
-        for e in self.exponents:
-            col = np.ones(x.shape[0])
-            for i in e:
-                col = col * x[:, i]
-            cols.append(col)
+        n_poly = len(self.exponents)
+        out = np.zeros((x.shape[0], len(self.names)))
+        mask = np.ones(len(self.names), dtype=bool) if columns is None else np.asarray(columns, dtype=bool)
+        sel = np.flatnonzero(mask[:n_poly])
+        if sel.size:
+            out[:, sel] = np.prod(x[:, None, :] ** self.powers[sel][None], axis=2)
+        k = n_poly
         if self.trig:
-            cols.extend(np.sin(x[:, i]) for i in range(self.d))
-            cols.extend(np.cos(x[:, i]) for i in range(self.d))
+            out[:, k:k + self.d] = np.sin(x)
+            out[:, k + self.d:k + 2 * self.d] = np.cos(x)
+            k += 2 * self.d
         if self.omegas:
             t = np.broadcast_to(np.asarray(t, dtype=float), (x.shape[0],))
             for w in self.omegas:
-                cols.extend([np.sin(w * t), np.cos(w * t)])
-        return np.stack(cols, axis=1)
+                out[:, k] = np.sin(w * t)
+                out[:, k + 1] = np.cos(w * t)
+                k += 2
+        return out
 
 
 # ------------------------------------------------------- physics as a callable
@@ -396,7 +406,8 @@ class SINDy(Learner):
         """The fitted vector field at states ``x`` (N, d) and times ``t`` -> (N, d)."""
         self._check_fitted()
         x = np.atleast_2d(np.asarray(x, dtype=float))
-        out = self._library_(t, x) @ self.coefficients_.T
+        active = np.any(self.coefficients_ != 0.0, axis=0)
+        out = self._library_(t, x, active) @ self.coefficients_.T
         if self._known_ is not None:
             out = out + self._known_(t, x)
         return out
