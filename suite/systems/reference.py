@@ -19,10 +19,11 @@ import math
 
 import numpy as np
 
-from solvers import Solution
+from solvers import Solution, etdrk4
 from solvers.horizon import reference_trajectory
 from solvers.scipy_ivp import solve_scipy
 
+from ..cache import cached_arrays, cached_solution, source_digest
 from .base import System
 
 __all__ = ["reference_solution", "attractor_scale", "REFERENCE_METHODS"]
@@ -100,8 +101,25 @@ def reference_solution(system: System, t_end: float, *, y0=None, dt_out: float |
     kind = _pick(system, method)
     scale = attractor_scale(system) if system.chaotic else None
     if kind == "etdrk4":
-        return _etdrk4_reference(system, y0, t_eval, scale, threshold)
-    return reference_trajectory(system.rhs(), y0, t_eval, system.params, scale=scale, threshold=threshold)
+        compute = lambda: _etdrk4_reference(system, y0, t_eval, scale, threshold)  # noqa: E731
+    else:
+        compute = lambda: reference_trajectory(system.rhs(), y0, t_eval, system.params,  # noqa: E731
+                                               scale=scale, threshold=threshold)
+    desc = dict(_cache_description(system), what="reference_solution", kind=kind, y0=y0, t_eval=t_eval,
+                scale=scale, threshold=float(threshold))
+    return cached_solution(desc, compute)
+
+
+def _cache_description(system: System) -> dict:
+    """Everything about ``system`` and this code that a cached result depends on (see :mod:`suite.cache`)."""
+    import scipy
+
+    cls = type(system)
+    return {"system": system.name, "class": f"{cls.__module__}.{cls.__qualname__}",
+            "params": dict(system.params),
+            "reference_dt": getattr(system, "reference_dt", None),
+            "source": source_digest(cls, System, reference_trajectory, solve_scipy, etdrk4, _output_times),
+            "numpy": np.__version__, "scipy": scipy.__version__}
 
 
 def _etdrk4_reference(system, y0, t_eval, scale, threshold) -> Solution:
@@ -163,7 +181,8 @@ def attractor_scale(system: System, seed: int = 0) -> np.ndarray:
     every ``sample_dt``.
     For non-chaotic systems: the orbit of the default start over 10
     characteristic times. Variables with no spread get their largest
-    absolute value (or 1). Cached per (name, parameters, seed).
+    absolute value (or 1). Cached per (name, parameters, seed) in this
+    process and on disk (:mod:`suite.cache`).
 
     Returns
     -------
@@ -172,6 +191,15 @@ def attractor_scale(system: System, seed: int = 0) -> np.ndarray:
     key = _scale_key(system, seed)
     if key in _SCALE_CACHE:
         return _SCALE_CACHE[key].copy()
+    desc = dict(_cache_description(system), what="attractor_scale", seed=int(seed),
+                sample_dt=float(system.sample_dt), time_unit=float(system.time_unit),
+                transient=float(system.transient), chaotic=bool(system.chaotic))
+    sc = cached_arrays(desc, lambda: {"scale": _compute_scale(system, seed)})["scale"]
+    _SCALE_CACHE[key] = sc
+    return sc.copy()
+
+
+def _compute_scale(system: System, seed: int) -> np.ndarray:
     dt = float(system.sample_dt)
     if system.chaotic:
         y0 = system.initial_conditions(1, seed)[0]
@@ -193,6 +221,4 @@ def attractor_scale(system: System, seed: int = 0) -> np.ndarray:
         raise RuntimeError(f"{system.name}: could not compute the attractor scale: {sol.message}")
     sc = y.std(axis=0)
     fallback = np.abs(y).max(axis=0)
-    sc = np.where(sc > 0, sc, np.where(fallback > 0, fallback, 1.0))
-    _SCALE_CACHE[key] = sc
-    return sc.copy()
+    return np.where(sc > 0, sc, np.where(fallback > 0, fallback, 1.0))
