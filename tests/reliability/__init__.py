@@ -1,0 +1,1 @@
+"""Fault-injection and adversarial-input tests (see RELIABILITY.md)."""
