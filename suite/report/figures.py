@@ -1,0 +1,174 @@
+"""Report figures; each function returns a :class:`matplotlib.figure.Figure` (Agg backend).
+
+* :func:`error_vs_horizon` — normalised error against forecast horizon, one line
+  per learner (median over seeds, band from the lowest to the highest seed),
+  with the valid-prediction threshold.
+* :func:`sweep_curve` — the headline metric against data fraction (sparsity
+  curve) or noise level, one line per learner with the spread over seeds.
+* :func:`work_precision` — error against seconds per Lyapunov time, log–log:
+  solvers as lines along their accuracy ladders, learners as points
+  (Hairer, Nørsett and Wanner 1993, section II.10).
+* :func:`critical_difference` — average ranks with the Nemenyi critical
+  difference and bars joining learners that are not significantly
+  different (Demšar 2006).
+
+References
+----------
+J. Demšar, "Statistical comparisons of classifiers over multiple data sets",
+J. Mach. Learn. Res. 7, 1–30 (2006).
+E. Hairer, S. P. Nørsett and G. Wanner, *Solving Ordinary Differential
+Equations I*, 2nd ed., Springer (1993).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from .style import THRESHOLD_COLOUR, new_figure, series_style
+from .tables import METRIC_LABELS
+
+__all__ = ["error_vs_horizon", "sweep_curve", "work_precision", "critical_difference"]
+
+
+def _legend(ax, n: int):
+    if n > 6:  # many series: outside the axes, never over the data
+        ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)
+    else:
+        ax.legend(loc="best", framealpha=0.85)
+
+
+def error_vs_horizon(curves: pd.DataFrame, system: str, *, threshold: float = 0.4, learner_order=None,
+                     subtitle: str = ""):
+    """``curves``: columns learner, seed, horizon (Lyapunov times), value (nrmse)."""
+    fig, ax = new_figure()
+    learners = learner_order or sorted(curves["learner"].unique())
+    for i, name in enumerate(learners):
+        g = curves[curves["learner"] == name]
+        if g.empty:
+            continue
+        w = g.pivot_table(index="horizon", columns="seed", values="value", aggfunc="median").sort_index()
+        h = w.index.to_numpy(float)
+        st = series_style(i)
+        ax.plot(h, w.median(axis=1), color=st["color"], linestyle=st["linestyle"], marker=st["marker"],
+                markersize=3, label=f"{name} ({w.shape[1]} seed{'s' if w.shape[1] != 1 else ''})")
+        if w.shape[1] > 1:
+            ax.fill_between(h, w.min(axis=1), w.max(axis=1), color=st["color"], alpha=0.2, linewidth=0)
+    ax.axhline(threshold, color=THRESHOLD_COLOUR, linestyle=":", linewidth=1.2)
+    ax.annotate(f"threshold {threshold:g}", xy=(0.99, threshold), xycoords=("axes fraction", "data"),
+                ha="right", va="bottom", fontsize=8, color=THRESHOLD_COLOUR)
+    ax.set_yscale("log")
+    ax.set_xlabel("forecast horizon (Lyapunov times)")
+    ax.set_ylabel("normalised RMSE (attractor std)")
+    ax.set_title(f"{system}: forecast error against horizon" + (f"\n{subtitle}" if subtitle else ""))
+    _legend(ax, len(learners))
+    return fig
+
+
+def sweep_curve(points: pd.DataFrame, system: str, task: str, metric: str, axis: str, *, learner_order=None,
+                subtitle: str = ""):
+    """``points``: columns learner, seed, ``axis`` (fraction or noise), headline."""
+    fig, ax = new_figure()
+    learners = learner_order or sorted(points["learner"].unique())
+    for i, name in enumerate(learners):
+        g = points[points["learner"] == name]
+        if g.empty:
+            continue
+        stat = g.groupby(axis)["headline"].agg(["median", "min", "max", "count"]).sort_index()
+        x = stat.index.to_numpy(float)
+        st = series_style(i)
+        ax.plot(x, stat["median"], color=st["color"], linestyle=st["linestyle"], marker=st["marker"],
+                markersize=5, label=name)
+        if (stat["count"] > 1).any():
+            ax.fill_between(x, stat["min"], stat["max"], color=st["color"], alpha=0.2, linewidth=0)
+    if axis == "fraction":
+        ax.set_xscale("log")
+        ax.set_xlabel("fraction of training samples kept")
+        ax.invert_xaxis()  # sparser to the right
+    else:
+        ax.set_xlabel("noise level (attractor std)")
+    if metric == "valid_prediction_time":
+        ax.axhline(1.0, color=THRESHOLD_COLOUR, linestyle=":", linewidth=1.0)
+    elif np.nanmin(points["headline"].to_numpy(float)) > 0:
+        ax.set_yscale("log")
+    ax.set_ylabel(METRIC_LABELS.get(metric, metric))
+    what = "sparsity" if axis == "fraction" else "noise"
+    ax.set_title(f"{system} · {task}: {what} curve (median over seeds, band min–max)"
+                 + (f"\n{subtitle}" if subtitle else ""))
+    _legend(ax, len(learners))
+    return fig
+
+
+def work_precision(ladder: pd.DataFrame, learners: pd.DataFrame, title: str, *, learner_order=None):
+    """``ladder``: rows of one problem (method, error, seconds_per_lyapunov_time, status);
+    ``learners``: columns learner, nrmse_mean, inference_seconds_per_lyapunov_time (one row per cell)."""
+    fig, ax = new_figure(7.2, 4.6)
+    ok = ladder[(ladder["status"] == "success") & np.isfinite(ladder["error"])]
+    grey = ("#000000", "#555555", "#888888")
+    for j, (method, g) in enumerate(ok.groupby("method", sort=False)):
+        g = g.sort_values("error")
+        ax.plot(np.maximum(g["error"], 1e-16), g["seconds_per_lyapunov_time"], color=grey[j % 3],
+                linestyle=("-", "--", "-.", ":")[j % 4], marker=".", linewidth=1.0,
+                label=f"solver {method}")
+    names = learner_order or sorted(learners["learner"].unique())
+    for i, name in enumerate(names):
+        g = learners[learners["learner"] == name]
+        if g.empty:
+            continue
+        st = series_style(i)
+        ax.scatter(g["nrmse_mean"], g["inference_seconds_per_lyapunov_time"], color=st["color"],
+                   marker=st["marker"], s=45, edgecolors="black", linewidths=0.5, zorder=3,
+                   label=f"learner {name}")
+    ax.set_xscale("log")
+    ax.set_yscale("log")
+    ax.set_xlabel("time-averaged normalised RMSE over the horizon")
+    ax.set_ylabel("seconds per trajectory per Lyapunov time")
+    ax.set_title(title)
+    ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)
+    return fig
+
+
+def critical_difference(test, title: str):
+    """Critical-difference diagram of a :class:`suite.stats.RankTest` (rank 1 = best, on the left)."""
+    k = len(test.learners)
+    order = np.argsort(test.average_ranks)
+    ranks = np.asarray(test.average_ranks, float)
+    height = 1.6 + 0.28 * k
+    fig, ax = new_figure(7.0, height)
+    ax.grid(False)
+    ax.set_xlim(0.5, k + 0.5)
+    ax.set_ylim(-(k // 2 + 2.5), 1.6)
+    ax.yaxis.set_visible(False)
+    for s in ("left", "right", "bottom"):
+        ax.spines[s].set_visible(False)
+    ax.xaxis.set_ticks_position("top")
+    ax.xaxis.set_label_position("top")
+    ax.set_xticks(range(1, k + 1))
+    ax.set_xlabel("average rank (1 = best)")
+    ax.axhline(0, color="black", linewidth=1)
+    half = (k + 1) // 2
+    for pos, idx in enumerate(order):
+        left = pos < half
+        y = -(pos + 1) * 0.8 if left else -(k - pos) * 0.8
+        x_text = 0.55 if left else k + 0.45
+        ax.plot([ranks[idx], ranks[idx], x_text], [0, y, y], color="black", linewidth=0.8)
+        ax.text(x_text, y + 0.08, f"{test.learners[idx]} ({ranks[idx]:.2f})", ha="left" if left else "right",
+                va="bottom", fontsize=8)
+    if np.isfinite(test.critical_difference):
+        cd = test.critical_difference
+        ax.plot([1, 1 + cd], [1.0, 1.0], color="black", linewidth=2)
+        ax.text(1 + cd / 2, 1.1, f"CD = {cd:.2f} (Nemenyi, alpha = {test.alpha:g})", ha="center", va="bottom",
+                fontsize=8)
+    level = -0.25
+    for group in test.cliques:
+        if len(group) < 2:
+            continue
+        r = [ranks[test.learners.index(g)] for g in group]
+        ax.plot([min(r) - 0.03, max(r) + 0.03], [level, level], color="#D55E00", linewidth=3,
+                solid_capstyle="round")
+        level -= 0.2
+    p = test.p_value
+    verdict = ("not significant: ranks may be noise" if not test.significant() else "significant")
+    ax.set_title(f"{title}\nFriedman p = {p:.3g} over {test.n_blocks} blocks ({verdict}); "
+                 "joined learners are not significantly different", fontsize=9)
+    return fig
