@@ -117,7 +117,7 @@ def _check_function(target: str) -> None:
 
 
 def run_grid(grid, store=None, *, executor: str = "local", workers: int | None = None,
-             scheduler: str | None = None, retries: int = 1, cells_per_worker: int = 1,
+             scheduler: str | None = None, retries: int = 1, cells_per_worker: int | None = None,
              function=DEFAULT_CELL_FUNCTION, grace: float | None = None, progress=None) -> RunSummary:
     """Run every cell of ``grid`` that ``store`` does not hold yet.
 
@@ -134,8 +134,11 @@ def run_grid(grid, store=None, *, executor: str = "local", workers: int | None =
         Dask scheduler address (dask executor only).
     retries : int
         Extra attempts for a cell whose worker died.
-    cells_per_worker : int
-        Local executor only: cells per worker process (default 1, every cell isolated).
+    cells_per_worker : int, optional
+        Cells a worker process runs before it is replaced: 0 (the default,
+        None) no limit, 1 a fresh process for every cell. A cell that times
+        out, dies or fails for memory always takes its worker down (see
+        :mod:`suite.executors.local`).
     function : str or callable
         The cell function ``CellSpec -> CellOutcome``, importable as ``"module:callable"``.
     grace : float, optional
@@ -156,6 +159,7 @@ def run_grid(grid, store=None, *, executor: str = "local", workers: int | None =
         raise ValueError(f"workers must be >= 1, got {workers}")
     ex = make_executor(executor, function, workers=workers, scheduler=scheduler, retries=retries,
                        cells_per_worker=cells_per_worker, grace=grace)
+    cells_per_worker = ex.cells_per_worker
     _check_function(ex.function)
     ex.check()
     cells = grid.cells()

@@ -32,9 +32,10 @@ def register(sub) -> None:
     p = sub.add_parser(
         "run", help="run the cells of a grid file into a store",
         description="Validate GRID.toml in full, then run every cell the store does not hold yet "
-                    "(an existing store is resumed: finished cells are skipped). Each cell runs in a "
-                    "fresh worker process with the grid's time budget; a failing, diverging or "
-                    "over-budget learner becomes a row with its status, and the sweep goes on.")
+                    "(an existing store is resumed: finished cells are skipped). Cells run in worker "
+                    "processes, reused across cells, with the grid's time budget; a failing, diverging or "
+                    "over-budget learner becomes a row with its status, and the sweep goes on (a cell "
+                    "that times out, dies or runs out of memory takes its worker down; a fresh one continues).")
     p.add_argument("grid", metavar="GRID.toml", help="grid file")
     p.add_argument("--store", default=None, help="SQLite store (default results/<grid name>.sqlite)")
     p.add_argument("--executor", choices=("local", "dask"), default="local",
@@ -47,9 +48,9 @@ def register(sub) -> None:
                    help="require the store to exist already (resuming is what happens anyway when it does)")
     p.add_argument("--retries", type=_count, default=1,
                    help="extra attempts for a cell whose worker process died (default 1)")
-    p.add_argument("--cells-per-worker", type=_positive_int, default=1,
-                   help="local executor: cells a worker process runs before it is replaced "
-                        "(default 1: every cell in a fresh process)")
+    p.add_argument("--cells-per-worker", type=_count, default=0,
+                   help="cells a worker process runs before it is replaced (default 0: no limit; "
+                        "1: every cell in a fresh process)")
     p.add_argument("--grace", type=float, default=None,
                    help="seconds past the budget before a cell's worker is killed (default max(2, 10%% of it))")
     p.add_argument("--cell-function", default=None, metavar="MODULE:CALLABLE",
@@ -70,8 +71,6 @@ def run(args) -> int:
         raise UsageError(f"--resume: store {str(store)!r} does not exist")
     if args.scheduler and args.executor != "dask":
         raise UsageError("--scheduler needs --executor dask")
-    if args.cells_per_worker != 1 and args.executor != "local":
-        raise UsageError("--cells-per-worker applies only to --executor local")
     if args.grace is not None and not args.grace >= 0:
         raise UsageError(f"--grace must be >= 0, got {args.grace}")
     function = args.cell_function or DEFAULT_CELL_FUNCTION

@@ -11,9 +11,33 @@ Protocol (JSON lines; the parent is :class:`suite.executors.local.LocalExecutor`
   ``{"event": "start", "key": ...}`` and ``{"event": "done", "key": ...,
   "outcome": {...}}`` per cell.
 
-The worker exits after ``max_cells`` cells, or at once (``os._exit``) when its
-stdin closes while a cell runs: a parent killed by SIGKILL leaves no orphan
-computing on.
+The worker exits after ``max_cells`` cells (``0``: no limit; it then runs
+until its stdin closes), after a cell that ended ``timeout`` or failed for
+memory (such a cell may leave threads or memory behind, so a fresh worker
+takes the next cell), or at once (``os._exit``) when its stdin closes while
+a cell runs: a parent killed by SIGKILL leaves no orphan computing on.
+
+Reuse and isolation
+    A worker that runs several cells keeps what makes the second cell cheap:
+    the imported modules and JAX's compiled functions (the speed-up). Before
+    each cell it restores what a cell could change for the next: the
+    environment variables, the working folder, numpy's floating-point error
+    settings, and the global numpy and Python random generators (reseeded
+    from a fixed value; :func:`suite.execute.run_cell` seeds them from the
+    cell's spec again before ``fit``), and it collects garbage. A cell's
+    accuracy figures therefore do not depend on whether its worker ran other
+    cells first (tested: ``tests/harness/test_executors.py``).
+
+Per-cell peak memory
+    On Linux the worker resets the process's peak resident set before each
+    cell (``"5"`` written to ``/proc/self/clear_refs``) and reads ``VmHWM``
+    from ``/proc/self/status`` after it: the cell's own peak, even in a
+    reused worker. It overwrites ``cost["peak_memory_mb"]`` with that figure
+    and sets ``cost["peak_memory_per_cell"] = 1``. Where that is unavailable
+    the figure is ``ru_maxrss``, the peak of the whole process so far,
+    marked ``cost["peak_memory_per_cell"] = 0`` ("process peak"). It also
+    sets ``cost["worker_reused"]``: 1 when the worker ran a cell before this
+    one, else 0.
 
 The memory limit (``resource.RLIMIT_AS``) is set after the imports, so it
 bounds the cell, not the start-up; it limits *address space*, which for a
@@ -24,10 +48,12 @@ starting ``memory:``.
 
 from __future__ import annotations
 
+import gc
 import importlib
 import json
 import math
 import os
+import random
 import queue
 import sys
 import threading
@@ -96,6 +122,80 @@ def _stdin_reader(q: queue.Queue) -> None:
     q.put(None)
 
 
+_CLEAR_REFS = "/proc/self/clear_refs"
+_STATUS = "/proc/self/status"
+
+
+def reset_peak_memory() -> bool:
+    """Reset this process's peak resident set (Linux); False where that is not possible."""
+    try:
+        with open(_CLEAR_REFS, "w") as fh:
+            fh.write("5")
+        return True
+    except OSError:
+        return False
+
+
+def _vm_hwm_mb() -> float | None:
+    try:
+        with open(_STATUS) as fh:
+            for line in fh:
+                if line.startswith("VmHWM:"):
+                    return float(line.split()[1]) / 1024.0  # kB
+    except (OSError, ValueError, IndexError):
+        return None
+    return None
+
+
+def _process_peak_mb() -> float:
+    import resource
+    rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+    return rss / (1024.0 * 1024.0) if sys.platform == "darwin" else rss / 1024.0
+
+
+def cell_peak_memory_mb(was_reset: bool) -> tuple[float, bool]:
+    """``(peak MB, per_cell)``: ``VmHWM`` after a reset, else the process's ``ru_maxrss``."""
+    if was_reset:
+        hwm = _vm_hwm_mb()
+        if hwm is not None:
+            return hwm, True
+    return _process_peak_mb(), False
+
+
+class _State:
+    """What a cell could change for the next cell in the same worker, restored before each cell."""
+
+    def __init__(self):
+        self.environ = dict(os.environ)
+        self.cwd = os.getcwd()
+        self.np_err = None
+        np = sys.modules.get("numpy")
+        if np is not None:
+            self.np_err = np.geterr()
+
+    def restore(self) -> None:
+        if dict(os.environ) != self.environ:
+            os.environ.clear()
+            os.environ.update(self.environ)
+        try:
+            if os.getcwd() != self.cwd:
+                os.chdir(self.cwd)
+        except OSError:
+            os.chdir(self.cwd)
+        np = sys.modules.get("numpy")
+        if np is not None:
+            if self.np_err is not None:
+                np.seterr(**self.np_err)
+            np.random.seed(0)
+        random.seed(0)
+        gc.collect()
+
+
+def _ends_worker(out: dict) -> bool:
+    """A cell after which the worker should not run another one."""
+    return out["status"] == "timeout" or str(out.get("error", "")).startswith("memory:")
+
+
 def _run_one(func, spec_dict: dict, memory_mb) -> dict:
     from suite.cell import CellOutcome, CellSpec
     try:
@@ -146,23 +246,34 @@ def main() -> int:
         if hard != resource.RLIM_INFINITY:
             limit = min(limit, hard)
         resource.setrlimit(resource.RLIMIT_AS, (limit, hard))
+    state = _State()
     send({"event": "ready", "pid": os.getpid()})
     max_cells = int(config.get("max_cells", 1))
     done = 0
-    while done < max_cells:
+    while max_cells <= 0 or done < max_cells:
         line = q.get()
         if line is None:
             break
         task = json.loads(line)
         _busy.set()
+        if done:
+            state.restore()
+        was_reset = reset_peak_memory()
         send({"event": "start", "key": task["key"]})
         t0 = time.perf_counter()
         out = _run_one(func, task["spec"], memory_mb)
+        wall = time.perf_counter() - t0
+        peak, per_cell = cell_peak_memory_mb(was_reset)
+        out["cost"]["peak_memory_mb"] = peak
+        out["cost"]["peak_memory_per_cell"] = int(per_cell)
+        out["cost"]["worker_reused"] = int(done > 0)
         out["info"]["worker_pid"] = os.getpid()
-        out["info"]["cell_wall_seconds"] = time.perf_counter() - t0
+        out["info"]["cell_wall_seconds"] = wall
         send({"event": "done", "key": task["key"], "outcome": out})
         _busy.clear()
         done += 1
+        if _ends_worker(out):
+            break
     return 0
 
 

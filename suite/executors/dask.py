@@ -1,16 +1,21 @@
 """The Dask executor: the same cells on a Dask distributed cluster.
 
 Each cell becomes one Dask task that runs the cell exactly as the local
-executor does: in a fresh worker *subprocess* of the Dask worker (``python -m
+executor does: in a worker *subprocess* of the Dask worker (``python -m
 suite.executors._worker``), with one BLAS/XLA thread, the memory limit and
 the time budget enforced by killing that subprocess. A thread-with-timeout
 inside the Dask worker could not stop a hung learner; a subprocess can, and
-it keeps JAX state out of the long-lived Dask worker. The per-cell start-up
-cost is therefore the same as the local executor's, plus a Dask round trip
-(~10 ms), plus the cluster's start when the executor starts one. Measured on
-the loaded shared 2-core machine (see :mod:`suite.executors.local`): eight
-trivial cells on a one-worker LocalCluster took 233 s including the cluster
-start (29 s per cell) against 142 s on the local executor.
+it keeps JAX state out of the long-lived Dask worker.
+
+Each Dask worker process keeps its subprocess between tasks (a
+:class:`~suite.executors.local.WorkerPool` of one slot held in a module
+global, one per Dask worker thread), so the interpreter start and ``import suite`` are
+paid once per Dask worker, not per cell; ``cells_per_worker`` bounds the
+reuse as for the local executor (0: no limit, 1: a fresh subprocess per
+cell). A cell that times out, dies or fails for memory takes the subprocess
+down and the next task starts a fresh one. The subprocess exits when its
+Dask worker does (its stdin closes). Measured figures: see the report in
+``tests/harness/test_executors.py``'s module docstring.
 
 A scheduler address that cannot be reached is an error (exit 2) raised
 before the store is opened (:meth:`DaskExecutor.check`).
@@ -27,31 +32,60 @@ from __future__ import annotations
 
 import os
 import sys
+import threading
 
 from suite.cell import CellOutcome, CellSpec
 
-from .local import CellResult, CellTask, LocalExecutor, _now, function_path
+from .local import DEFAULT_CELLS_PER_WORKER, CellResult, CellTask, WorkerPool, _now, function_path
 
 __all__ = ["DaskExecutor", "run_cell_task"]
 
 
-def run_cell_task(function: str, key: str, spec: dict, budget_seconds, memory_mb, retries: int,
-                  grace, sys_path: list) -> dict:
-    """Run one cell in a fresh subprocess of the calling (Dask worker) process.
+_POOLS: dict[int, WorkerPool] = {}  # one per Dask worker thread (one thread: one subprocess)
+_POOLS_LOCK = threading.Lock()
 
-    Returns a JSON-ready dict (``outcome``, ``started``, ``finished``, ``attempts``).
+
+def _pool(function: str, retries: int, grace, cells_per_worker: int) -> WorkerPool:
+    """This thread's pool of one worker subprocess, made anew when its settings change."""
+    tid = threading.get_ident()
+    with _POOLS_LOCK:
+        p = _POOLS.get(tid)
+    if p is None or (p.function, p.retries, p.grace, p.cells_per_worker) != (
+            function, max(0, int(retries)), grace, max(0, int(cells_per_worker))):
+        if p is not None:
+            p.close()
+        p = WorkerPool(function, 1, cells_per_worker, retries, grace)
+        with _POOLS_LOCK:
+            _POOLS[tid] = p
+    return p
+
+
+def run_cell_task(function: str, key: str, spec: dict, budget_seconds, memory_mb, retries: int,
+                  grace, sys_path: list, cells_per_worker: int = DEFAULT_CELLS_PER_WORKER) -> dict:
+    """Run one cell in the calling (Dask worker) process's worker subprocess.
+
+    The subprocess is kept for the next task (see the module docstring).
+    Returns a JSON-ready dict (``outcome``, ``started``, ``finished``,
+    ``attempts``, ``subprocess_starts``: subprocesses started for this cell).
     """
     from suite.executors._worker import outcome_to_dict
 
     for p in sys_path:
         if p not in sys.path and os.path.isdir(p):
             sys.path.append(p)
-    ex = LocalExecutor(function=function, workers=1, cells_per_worker=1, retries=retries, grace=grace)
     got = []
-    ex.run([CellTask(key, CellSpec(**spec), budget_seconds, memory_mb)], got.append)
+    pool = _pool(function, retries, grace, cells_per_worker)
+    before = pool.started
+    try:
+        pool.run([CellTask(key, CellSpec(**spec), budget_seconds, memory_mb)], got.append)
+    except BaseException:
+        with _POOLS_LOCK:  # run() killed its worker: start afresh next time
+            _POOLS.pop(threading.get_ident(), None)
+        raise
+    starts = pool.started - before
     r = got[0]
     return {"outcome": outcome_to_dict(r.outcome), "started": r.started, "finished": r.finished,
-            "attempts": r.attempts}
+            "attempts": r.attempts, "subprocess_starts": starts}
 
 
 class DaskExecutor:
@@ -69,13 +103,20 @@ class DaskExecutor:
         Extra attempts for a cell whose worker subprocess died.
     grace : float, optional
         Seconds past the budget before the subprocess is killed.
+    cells_per_worker : int
+        Cells a Dask worker's subprocess runs before it is replaced (0: no limit).
     """
 
     name = "dask"
 
     def __init__(self, function="suite.execute:run_cell", scheduler: str | None = None,
-                 workers: int | None = None, retries: int = 1, grace: float | None = None):
+                 workers: int | None = None, retries: int = 1, grace: float | None = None,
+                 cells_per_worker: int = DEFAULT_CELLS_PER_WORKER):
         self.function = function_path(function)
+        if int(cells_per_worker) < 0:
+            raise ValueError(f"cells per worker must be >= 0 (0: no limit), got {cells_per_worker}")
+        self.cells_per_worker = int(cells_per_worker)
+        self.workers_started = 0
         self.scheduler = scheduler
         self.workers = max(1, int(workers or os.cpu_count() or 1))
         self.retries = max(0, int(retries))
@@ -117,7 +158,7 @@ class DaskExecutor:
             for t in tasks:
                 fut = client.submit(run_cell_task, self.function, t.key, t.spec.canonical(),
                                     t.budget_seconds, t.memory_mb, self.retries, self.grace, sys_path,
-                                    key=f"lyapbench-cell-{t.key}", pure=False)
+                                    self.cells_per_worker, key=f"lyapbench-cell-{t.key}", pure=False)
                 futures[fut.key] = t
                 submitted.append(fut)
             from suite.executors._worker import outcome_from_dict
@@ -125,6 +166,7 @@ class DaskExecutor:
                 t = futures[fut.key]
                 try:
                     d = fut.result()
+                    self.workers_started += int(d.get("subprocess_starts", 0))
                     r = CellResult(t.key, t.spec, outcome_from_dict(d["outcome"]), d["started"],
                                    d["finished"], d["attempts"])
                 except Exception as exc:  # the Dask task itself failed (worker lost, ...)

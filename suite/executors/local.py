@@ -1,4 +1,4 @@
-"""The local executor: each cell in its own fresh worker process, with a time budget.
+"""The local executor: cells in reused worker processes, each with a time budget.
 
 Workers are started with :mod:`subprocess` (``python -m
 suite.executors._worker``), a fresh interpreter each: nothing is forked from
@@ -13,24 +13,30 @@ Time budget
     with SIGKILL ``budget_seconds + grace`` later (``grace`` defaults to
     ``max(2 s, 10 % of the budget)``, room for the learner's own budget
     check to end it gracefully). The cell is recorded as ``timeout``; it is
-    not retried.
+    not retried; a fresh worker takes the next cell.
 Dead workers
     A worker that exits without reporting its cell (killed, segfault, killed
     by the kernel for memory) is replaced and the cell retried ``retries``
     times (default 1); then it is recorded ``failed`` with the reason.
-Start-up cost
-    A worker pays an interpreter start plus ``import suite`` (JAX) before
-    its cell's clock starts. Measured on the shared 2-core development
-    machine while other jobs kept its load average at 10-13: 3.5-3.8 s of
-    CPU and 15-18 s of wall time per worker start (a trivial cell itself
-    took < 0.1 ms). Eight trivial cells on one worker slot took 142 s with a
-    fresh worker per cell (17.8 s per cell) and 20 s with
-    ``cells_per_worker=8`` (2.6 s per cell, one start amortised). On an idle
-    machine the overhead is about the CPU figure, a few seconds per cell:
-    small against learners trained for minutes, dominant for cheap
-    baselines. ``cells_per_worker > 1`` reuses a worker for that many cells
-    (isolation is then per worker; a killed worker takes only its current
-    cell with it); the default, 1, isolates every cell.
+Worker reuse (``cells_per_worker``)
+    A worker start costs an interpreter plus ``import suite`` (JAX): measured
+    3.5-3.8 s of CPU on the shared 2-core development machine (15-18 s of
+    wall time at load average 10-13), against < 0.1 ms for a trivial cell.
+    So a worker runs cells until the run ends (default ``0``: no limit; ``N``:
+    replaced after N cells; ``1``: a fresh process for every cell). Isolation
+    where it matters is kept: a cell that times out (killed, or ended
+    ``timeout`` by its own budget check), dies or fails for memory takes its
+    worker down and a fresh worker continues; between cells the worker
+    restores the environment, working folder, numpy error settings and
+    global random generators (see :mod:`suite.executors._worker`). JAX's
+    compiled functions are kept on purpose: that is the speed-up, and it
+    changes no figure (same grid with reuse on and off gives identical
+    accuracy metrics, tested in ``tests/harness/test_executors.py``). The
+    cost figures a cell reports (``peak_memory_mb`` is per cell, see
+    :mod:`suite.executors._worker`; ``worker_reused`` says whether the
+    worker ran a cell before) are those of the cell; train and inference
+    times of a reused worker exclude compilations that an earlier cell of
+    the same shape already paid for.
 """
 
 from __future__ import annotations
@@ -49,7 +55,11 @@ from datetime import datetime, timezone
 
 from suite.cell import CellOutcome, CellSpec
 
-__all__ = ["LocalExecutor", "CellTask", "CellResult", "worker_env", "function_path"]
+__all__ = ["LocalExecutor", "WorkerPool", "CellTask", "CellResult", "worker_env", "function_path",
+           "DEFAULT_CELLS_PER_WORKER"]
+
+#: Cells a worker process runs before it is replaced: 0, no limit (see the module docstring).
+DEFAULT_CELLS_PER_WORKER = 0
 
 ONE_THREAD_ENV = {
     "OPENBLAS_NUM_THREADS": "1",
@@ -136,6 +146,8 @@ class _Worker:
         self.started_at: float | None = None
         self.started_iso: str | None = None
         self.cells = 0
+        self.spent = False
+        self.config = config
         self.max_cells = int(config["max_cells"])
         self._send(json.dumps(config))
         threading.Thread(target=self._read, args=(q,), daemon=True).start()
@@ -166,7 +178,8 @@ class _Worker:
 
     @property
     def reusable(self) -> bool:
-        return self.alive and self.task is None and self.cells < self.max_cells
+        return (self.alive and self.task is None and not self.spent
+                and (self.max_cells <= 0 or self.cells < self.max_cells))
 
     def kill(self) -> None:
         if self.proc.poll() is None:
@@ -192,55 +205,62 @@ class _Worker:
                 pass
 
 
-class LocalExecutor:
-    """Run cells in worker processes on this machine.
+class WorkerPool:
+    """Worker processes that outlive one :meth:`run`: the slots, their message queue and limits.
 
-    Parameters
-    ----------
-    function : str or callable
-        The cell function, ``spec -> CellOutcome``, importable by a worker
-        (``"module:callable"``); default ``suite.execute:run_cell``.
-    workers : int, optional
-        Parallel workers (default: the number of CPUs).
-    cells_per_worker : int
-        Cells a worker runs before it is replaced (1: every cell isolated).
-    retries : int
-        Extra attempts for a cell whose worker died.
-    grace : float, optional
-        Seconds past the budget before a worker is killed.
-    start_timeout : float
-        Seconds a worker may take to start and report a cell before it counts as dead.
+    :class:`LocalExecutor` makes one pool per run and closes it afterwards;
+    the Dask executor keeps one per Dask worker process, so that its worker
+    subprocess serves many Dask tasks. Workers are started with the first
+    cell that needs them; a worker whose function or memory limit differs
+    from the next run's is replaced.
     """
 
-    name = "local"
-
-    def __init__(self, function="suite.execute:run_cell", workers: int | None = None,
-                 cells_per_worker: int = 1, retries: int = 1, grace: float | None = None,
-                 start_timeout: float = 300.0):
-        self.function = function_path(function)
-        self.workers = max(1, int(workers or os.cpu_count() or 1))
-        self.cells_per_worker = max(1, int(cells_per_worker))
+    def __init__(self, function: str, workers: int, cells_per_worker: int = 0, retries: int = 1,
+                 grace: float | None = None, start_timeout: float = 300.0):
+        self.function = function
+        self.workers = max(1, int(workers))
+        self.cells_per_worker = max(0, int(cells_per_worker))
         self.retries = max(0, int(retries))
         self.grace = grace
         self.start_timeout = float(start_timeout)
-
-    def check(self) -> None:
-        """Nothing to check before the store is opened (workers start with the run)."""
+        self.q: queue.Queue = queue.Queue()
+        self.slots: list[_Worker | None] = [None] * self.workers
+        self.next_id = 0
+        self.started = 0  # worker processes started over the pool's life
 
     def _grace(self, budget: float) -> float:
         return self.grace if self.grace is not None else max(2.0, 0.1 * budget)
 
-    def run(self, tasks, on_result) -> None:
-        """Run ``tasks`` (a list of :class:`CellTask`); call ``on_result(CellResult)`` in this thread.
+    def kill(self) -> None:
+        """Kill every worker at once."""
+        for w in self.slots:
+            if w is not None and w.alive:
+                w.kill()
+        self.slots = [None] * self.workers
 
-        Results arrive in completion order. On any exception (including
-        KeyboardInterrupt) every worker is killed before it propagates.
+    def close(self) -> None:
+        """Let every idle worker finish and exit (stdin closed)."""
+        for w in self.slots:
+            if w is not None and w.alive:
+                w.retire()
+        self.slots = [None] * self.workers
+
+    def run(self, tasks, on_result) -> None:
+        """Run ``tasks``; call ``on_result(CellResult)`` in this thread, in completion order.
+
+        On any exception every worker is killed before it propagates.
         """
         tasks = list(tasks)
         if not tasks:
             return
+        try:
+            self._run(tasks, on_result)
+        except BaseException:
+            self.kill()
+            raise
+
+    def _run(self, tasks, on_result) -> None:
         pending = collections.deque((t, 1) for t in tasks)
-        q: queue.Queue = queue.Queue()
         env = worker_env()
         cmd = [sys.executable, "-m", "suite.executors._worker"]
         memory = {t.memory_mb for t in tasks}
@@ -248,65 +268,58 @@ class LocalExecutor:
             raise ValueError("all cells of one run must share one memory limit")
         config = {"function": self.function, "memory_mb": memory.pop(),
                   "max_cells": self.cells_per_worker, "sys_path": [p for p in sys.path if p]}
-        slots: list[_Worker | None] = [None] * min(self.workers, len(tasks))
-        next_id = 0
-        try:
-            while pending or any(w is not None and w.task is not None for w in slots):
-                # hand pending cells to free slots
-                for i, w in enumerate(slots):
-                    if not pending:
-                        break
-                    if w is not None and w.task is not None:
-                        continue
-                    if w is None or not w.reusable:
-                        if w is not None:
-                            w.retire()
-                        w = slots[i] = _Worker(next_id, cmd, env, config, q)
-                        next_id += 1
-                    task, attempt = pending.popleft()
-                    w.assign(task, attempt)
-                # wait for a message or the nearest deadline
-                now = time.monotonic()
-                deadlines = [w.deadline if w.deadline is not None else w.started_at + self.start_timeout
-                             for w in slots if w is not None and w.task is not None]
-                wait = max(0.0, min(deadlines) - now) if deadlines else 1.0
-                try:
-                    w, msg = q.get(timeout=min(wait, 5.0) + 0.01)
-                except queue.Empty:
-                    w, msg = None, None
-                if w is not None:
-                    self._handle(w, msg, pending, on_result)
-                # enforce deadlines
-                now = time.monotonic()
-                for w in slots:
-                    if w is None or w.task is None:
-                        continue
-                    if w.deadline is not None and now > w.deadline:
-                        elapsed = now - w.started_run
-                        task, attempt = w.task, w.attempt
-                        w.task = None
-                        w.kill()
-                        budget = task.budget_seconds
-                        on_result(CellResult(
-                            task.key, task.spec,
-                            CellOutcome("timeout", error=f"killed after {elapsed:.1f} s: over the budget "
-                                                         f"of {budget:g} s per cell",
-                                        info={"killed_after_seconds": elapsed}),
-                            w.started_iso, _now(), attempt))
-                    elif w.deadline is None and now > w.started_at + self.start_timeout:
-                        task, attempt = w.task, w.attempt
-                        w.task = None
-                        w.kill()
-                        self._died(task, attempt, f"worker did not start within {self.start_timeout:g} s",
-                                   None, pending, on_result)
-        except BaseException:
+        slots = self.slots
+        n_used = min(self.workers, len(tasks))
+        while pending or any(w is not None and w.task is not None for w in slots):
+            # hand pending cells to free slots
+            for i in range(n_used):
+                if not pending:
+                    break
+                w = slots[i]
+                if w is not None and w.task is not None:
+                    continue
+                if w is None or not w.reusable or w.config != config:
+                    if w is not None:
+                        w.retire()
+                    w = slots[i] = _Worker(self.next_id, cmd, env, config, self.q)
+                    self.next_id += 1
+                    self.started += 1
+                task, attempt = pending.popleft()
+                w.assign(task, attempt)
+            # wait for a message or the nearest deadline
+            now = time.monotonic()
+            deadlines = [w.deadline if w.deadline is not None else w.started_at + self.start_timeout
+                         for w in slots if w is not None and w.task is not None]
+            wait = max(0.0, min(deadlines) - now) if deadlines else 1.0
+            try:
+                w, msg = self.q.get(timeout=min(wait, 5.0) + 0.01)
+            except queue.Empty:
+                w, msg = None, None
+            if w is not None:
+                self._handle(w, msg, pending, on_result)
+            # enforce deadlines
+            now = time.monotonic()
             for w in slots:
-                if w is not None and w.alive:
+                if w is None or w.task is None:
+                    continue
+                if w.deadline is not None and now > w.deadline:
+                    elapsed = now - w.started_run
+                    task, attempt = w.task, w.attempt
+                    w.task = None
                     w.kill()
-            raise
-        for w in slots:
-            if w is not None and w.alive:
-                w.retire()
+                    budget = task.budget_seconds
+                    on_result(CellResult(
+                        task.key, task.spec,
+                        CellOutcome("timeout", error=f"killed after {elapsed:.1f} s: over the budget "
+                                                     f"of {budget:g} s per cell",
+                                    info={"killed_after_seconds": elapsed}),
+                        w.started_iso, _now(), attempt))
+                elif w.deadline is None and now > w.started_at + self.start_timeout:
+                    task, attempt = w.task, w.attempt
+                    w.task = None
+                    w.kill()
+                    self._died(task, attempt, f"worker did not start within {self.start_timeout:g} s",
+                               None, pending, on_result)
 
     def _handle(self, w: _Worker, msg, pending, on_result) -> None:
         if not w.alive and msg is not None:
@@ -335,9 +348,11 @@ class LocalExecutor:
             w.started_iso = _now()
             w.deadline = None if budget is None else w.started_run + budget + self._grace(budget)
         elif event == "done":
-            from suite.executors._worker import outcome_from_dict
+            from suite.executors._worker import _ends_worker, outcome_from_dict
             task, attempt, started = w.task, w.attempt, w.started_iso
             w.task = None
+            if _ends_worker(msg["outcome"]):
+                w.spent = True  # the worker exits by itself after such a cell
             on_result(CellResult(task.key, task.spec, outcome_from_dict(msg["outcome"]), started, _now(),
                                  attempt))
 
@@ -349,3 +364,60 @@ class LocalExecutor:
         on_result(CellResult(task.key, task.spec,
                              CellOutcome("failed", error=f"{reason} ({tries})"),
                              started, _now(), attempt))
+
+
+class LocalExecutor:
+    """Run cells in worker processes on this machine.
+
+    Parameters
+    ----------
+    function : str or callable
+        The cell function, ``spec -> CellOutcome``, importable by a worker
+        (``"module:callable"``); default ``suite.execute:run_cell``.
+    workers : int, optional
+        Parallel workers (default: the number of CPUs).
+    cells_per_worker : int
+        Cells a worker runs before it is replaced: 0 (default) no limit,
+        1 a fresh process for every cell.
+    retries : int
+        Extra attempts for a cell whose worker died.
+    grace : float, optional
+        Seconds past the budget before a worker is killed.
+    start_timeout : float
+        Seconds a worker may take to start and report a cell before it counts as dead.
+    """
+
+    name = "local"
+
+    def __init__(self, function="suite.execute:run_cell", workers: int | None = None,
+                 cells_per_worker: int = DEFAULT_CELLS_PER_WORKER, retries: int = 1,
+                 grace: float | None = None, start_timeout: float = 300.0):
+        self.function = function_path(function)
+        self.workers = max(1, int(workers or os.cpu_count() or 1))
+        if int(cells_per_worker) < 0:
+            raise ValueError(f"cells per worker must be >= 0 (0: no limit), got {cells_per_worker}")
+        self.cells_per_worker = int(cells_per_worker)
+        self.retries = max(0, int(retries))
+        self.grace = grace
+        self.start_timeout = float(start_timeout)
+        self.workers_started = 0
+
+    def check(self) -> None:
+        """Nothing to check before the store is opened (workers start with the run)."""
+
+    def run(self, tasks, on_result) -> None:
+        """Run ``tasks`` (a list of :class:`CellTask`); call ``on_result(CellResult)`` in this thread.
+
+        Results arrive in completion order. On any exception (including
+        KeyboardInterrupt) every worker is killed before it propagates.
+        """
+        tasks = list(tasks)
+        if not tasks:
+            return
+        pool = WorkerPool(self.function, min(self.workers, len(tasks)), self.cells_per_worker,
+                          self.retries, self.grace, self.start_timeout)
+        try:
+            pool.run(tasks, on_result)
+        finally:
+            self.workers_started += pool.started
+        pool.close()
