@@ -135,6 +135,32 @@ class Store:
         self.path = path
         self._conn = conn
         self._lock_fd = lock_fd
+        self._inode = self._identity()
+
+    def _identity(self):
+        try:
+            st = os.stat(self.path)
+        except OSError:
+            return None
+        return (st.st_dev, st.st_ino)
+
+    def _check_still_there(self) -> None:
+        """Refuse to write into a store whose file was removed or replaced since it was opened.
+
+        SQLite would go on writing into the unlinked file and every result
+        would be lost without a word.
+        """
+        if self._inode is None:
+            self._inode = self._identity()
+        elif self._identity() != self._inode:
+            raise StoreError(f"store {str(self.path)!r} was removed or replaced during the run; "
+                             "the results of this run cannot be saved")
+
+    def _write_failed(self, exc: sqlite3.Error) -> StoreError:
+        if self._conn.in_transaction:
+            self._conn.execute("ROLLBACK")
+        return StoreError(f"store {str(self.path)!r}: cannot write ({exc}); the cells committed before "
+                          "are kept: fix the cause and run again with --resume")
 
     # ------------------------------------------------------------------ opening
     @classmethod
@@ -269,8 +295,12 @@ class Store:
 
     # ------------------------------------------------------------------- writing
     def add_manifest(self, manifest: dict) -> int:
-        cur = self._conn.execute("INSERT INTO manifests(created, body) VALUES (?, ?)",
-                                 (_now(), _json(manifest)))
+        self._check_still_there()
+        try:
+            cur = self._conn.execute("INSERT INTO manifests(created, body) VALUES (?, ?)",
+                                     (_now(), _json(manifest)))
+        except sqlite3.OperationalError as exc:  # disk full, read-only file, I/O error
+            raise self._write_failed(exc) from None
         return int(cur.lastrowid)
 
     def record(self, key: str, spec: CellSpec, outcome: CellOutcome, *, started: str | None = None,
@@ -287,6 +317,7 @@ class Store:
         """
         if outcome.status not in STATUSES:
             raise ValueError(f"cell status {outcome.status!r} is not one of {', '.join(STATUSES)}")
+        self._check_still_there()
         c = self._conn
         c.execute("BEGIN IMMEDIATE")
         try:
@@ -303,8 +334,11 @@ class Store:
                 [(key, str(m.metric), _float_or_none(m.horizon), _float_or_none(m.value))
                  for m in outcome.metrics])
             c.execute("COMMIT")
+        except sqlite3.OperationalError as exc:  # disk full, read-only file, I/O error
+            raise self._write_failed(exc) from None
         except BaseException:
-            c.execute("ROLLBACK")
+            if c.in_transaction:  # a failed COMMIT may have rolled back already
+                c.execute("ROLLBACK")
             raise
 
     # ------------------------------------------------------------------- reading
