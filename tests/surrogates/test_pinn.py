@@ -61,7 +61,7 @@ def test_pinn_reconstructs_harmonic_oscillator(oscillator_pinn):
 
 
 def test_pinn_identifies_oscillator_frequency():
-    # guess 1.5, truth 2.0 (closed-form data); measured estimate 1.99995
+    # guess 1.5, truth 2.0 (closed-form data), 1,500 Adam steps: measured estimate 1.99836 (seed 0)
     physics = Physics(level="full", vector_field=oscillator, params={"omega": 1.5}, unknown=("omega",))
     model = PINN(**SMALL, adam_steps=1500, lbfgs_steps=0).fit(oscillator_data(40), physics, seed=0)
     est = model.identified_params()
