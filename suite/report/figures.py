@@ -25,7 +25,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from .style import THRESHOLD_COLOUR, new_figure, series_style
+from .style import MARKERS, THRESHOLD_COLOUR, new_figure, series_style
 from .tables import METRIC_LABELS
 
 __all__ = ["error_vs_horizon", "sweep_curve", "work_precision", "critical_difference"]
@@ -82,7 +82,13 @@ def sweep_curve(points: pd.DataFrame, system: str, task: str, metric: str, axis:
         if (stat["count"] > 1).any():
             ax.fill_between(x, stat["min"], stat["max"], color=st["color"], alpha=0.2, linewidth=0)
     if axis == "fraction":
+        from matplotlib.ticker import FixedLocator, NullLocator
+
         ax.set_xscale("log")
+        levels = np.unique(points[axis].to_numpy(float))
+        ax.xaxis.set_major_locator(FixedLocator(levels))
+        ax.xaxis.set_minor_locator(NullLocator())
+        ax.set_xticklabels([f"{v:g}" for v in levels])
         ax.set_xlabel("fraction of training samples kept")
         ax.invert_xaxis()  # sparser to the right
     else:
@@ -93,15 +99,16 @@ def sweep_curve(points: pd.DataFrame, system: str, task: str, metric: str, axis:
         ax.set_yscale("log")
     ax.set_ylabel(METRIC_LABELS.get(metric, metric))
     what = "sparsity" if axis == "fraction" else "noise"
-    ax.set_title(f"{system} · {task}: {what} curve (median over seeds, band min–max)"
-                 + (f"\n{subtitle}" if subtitle else ""))
+    ax.set_title(f"{system} · {task}: {what} curve\n" + (f"{subtitle}; " if subtitle else "")
+                 + "median over seeds, band min–max")
     _legend(ax, len(learners))
     return fig
 
 
 def work_precision(ladder: pd.DataFrame, learners: pd.DataFrame, title: str, *, learner_order=None):
     """``ladder``: rows of one problem (method, error, seconds_per_lyapunov_time, status);
-    ``learners``: columns learner, nrmse_mean, inference_seconds_per_lyapunov_time (one row per cell)."""
+    ``learners``: columns learner, nrmse_mean, inference_seconds_per_lyapunov_time (one row per cell)
+    and optionally ``setting`` (a label: one marker shape per setting, one colour per learner)."""
     fig, ax = new_figure(7.2, 4.6)
     ok = ladder[(ladder["status"] == "success") & np.isfinite(ladder["error"])]
     grey = ("#000000", "#555555", "#888888")
@@ -111,14 +118,24 @@ def work_precision(ladder: pd.DataFrame, learners: pd.DataFrame, title: str, *, 
                 linestyle=("-", "--", "-.", ":")[j % 4], marker=".", linewidth=1.0,
                 label=f"solver {method}")
     names = learner_order or sorted(learners["learner"].unique())
+    settings = list(dict.fromkeys(learners["setting"])) if "setting" in learners else [""]
+    many = len(settings) > 1
     for i, name in enumerate(names):
         g = learners[learners["learner"] == name]
         if g.empty:
             continue
         st = series_style(i)
-        ax.scatter(g["nrmse_mean"], g["inference_seconds_per_lyapunov_time"], color=st["color"],
-                   marker=st["marker"], s=45, edgecolors="black", linewidths=0.5, zorder=3,
-                   label=f"learner {name}")
+        for j, setting in enumerate(settings):
+            h = g[g["setting"] == setting] if many else g
+            if h.empty:
+                continue
+            ax.scatter(h["nrmse_mean"], h["inference_seconds_per_lyapunov_time"], color=st["color"],
+                       marker=MARKERS[j % len(MARKERS)] if many else st["marker"], s=45, edgecolors="black",
+                       linewidths=0.5, zorder=3, label=f"learner {name}" if j == 0 or not many else None)
+    if many:  # markers say the data setting, colours the learner
+        for j, setting in enumerate(settings):
+            ax.scatter([], [], color="white", edgecolors="black", marker=MARKERS[j % len(MARKERS)], s=45,
+                       label=setting)
     ax.set_xscale("log")
     ax.set_yscale("log")
     ax.set_xlabel("time-averaged normalised RMSE over the horizon")
@@ -169,6 +186,6 @@ def critical_difference(test, title: str):
         level -= 0.2
     p = test.p_value
     verdict = ("not significant: ranks may be noise" if not test.significant() else "significant")
-    ax.set_title(f"{title}\nFriedman p = {p:.3g} over {test.n_blocks} blocks ({verdict}); "
-                 "joined learners are not significantly different", fontsize=9)
+    ax.set_title(f"{title}\nFriedman p = {p:.3g} ({verdict}); "
+                 "learners joined by a bar are not significantly different", fontsize=9)
     return fig

@@ -227,12 +227,11 @@ def _figures(cells, tidy, lad, tests, tmp, made, kept, keep) -> list[str]:
         for problem, lg in lad.groupby("problem"):
             p = pts[[problem_key(a, b, c) == problem for a, b, c in
                      zip(pts["system"], pts["system_params"], pts["task_options"])]]
-            if p["physics"].nunique() > 1 or p["fraction"].nunique() > 1 or p["noise"].nunique() > 1:
-                lab = p["learner"] + [f" f={a:g} n={b:g}" + (f" [{c}]" if p["physics"].nunique() > 1 else "")
-                                      for a, b, c in zip(p["fraction"], p["noise"], p["physics"])]
-                p = p.assign(learner=lab)
-            fig = F.work_precision(lg, p, f"{problem}: work–precision over {float(lg['horizon'].iloc[0]):.3g} "
-                                   f"Lyapunov times", learner_order=sorted(p["learner"].unique()))
+            p = p.assign(setting=[f"fraction {a:g}, noise {b:g}" + (f", {c}" if p["physics"].nunique() > 1 else "")
+                                  for a, b, c in zip(p["fraction"], p["noise"], p["physics"])])
+            system = str(lg["system"].iloc[0])
+            fig = F.work_precision(lg, p, f"{system}: work–precision over {float(lg['horizon'].iloc[0]):.3g} "
+                                   f"Lyapunov times", learner_order=_ordered(p["learner"], learners))
             save(fig, f"work_precision_{_slug(problem_slug(problem))}",
                  f"error against cost, solvers ({', '.join(lg['method'].unique())}) as lines, "
                  f"learners as points (one per cell), {problem}")
