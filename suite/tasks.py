@@ -28,7 +28,9 @@ forecast
     ``valid_prediction_time`` (median over starts; threshold
     ``vpt_threshold`` on the normalised error), ``valid_prediction_time_iqr``,
     and one ``valid_prediction_time_start_<k>`` row per start ``k``
-    (0-based, horizon None). A start whose error never crosses the threshold
+    (0-based, horizon None), and ``nrmse_mean`` (the normalised error
+    averaged over starts and every output time of the horizon, the error
+    axis of the work–precision plane). A start whose error never crosses the threshold
     gets the clipped horizon (censored; counted in ``info["vpt_censored"]``).
 climate
     Training as in forecast; one autonomous rollout of
@@ -95,6 +97,7 @@ __all__ = [
     "TaskSetup",
     "resolve_task_options",
     "expected_samples",
+    "forecast_problem",
     "setup_task",
     "time_unit_kind",
 ]
@@ -138,7 +141,7 @@ TASK_OPTION_HELP: dict[str, str] = {
 #: Rows with a ``horizon`` (in time units) are marked ``[curve]``.
 METRIC_NAMES: dict[str, tuple[str, ...]] = {
     "reconstruct": ("relative_l2", "nrmse_mean"),
-    "forecast": ("nrmse [curve]", "valid_prediction_time", "valid_prediction_time_iqr",
+    "forecast": ("nrmse [curve]", "nrmse_mean", "valid_prediction_time", "valid_prediction_time_iqr",
                  "valid_prediction_time_start_<k>", "reference_horizon",
                  "energy_drift", "conserved_drift_<name>"),
     "climate": ("wasserstein_<state>", "wasserstein_mean", "spectrum_distance",
@@ -322,13 +325,37 @@ def _training(ctx: TaskContext):
     return data, info, dt_roll
 
 
-def _setup_forecast(ctx: TaskContext) -> TaskSetup:
+def forecast_problem(ctx: TaskContext, dt: float | None = None, n_starts: int | None = None) -> dict:
+    """The forecast task's test problem: start states, output times and reference trajectories.
+
+    Exactly what :func:`setup_task` builds for a forecast cell with the same
+    ``ctx`` (system, options, data seed), without the training data, so
+    that solvers can be scored on the same problem as the learners.
+
+    Parameters
+    ----------
+    ctx : TaskContext
+        ``ctx.task`` is ignored; ``ctx.options`` are forecast options.
+    dt : float, optional
+        Rollout step (default: the system's sampling step, i.e. stride 1).
+    n_starts : int, optional
+        Use only the first ``n_starts`` of the task's start states.
+
+    Returns
+    -------
+    dict with ``history`` (K, m, d), ``y0s`` (K, d), ``t_out`` (n,) from 0,
+    ``t_start`` (absolute time of ``y0s``, for non-autonomous systems),
+    ``truth`` (K, n, d), ``reference_horizon`` (time units),
+    ``horizon_clipped`` (bool), ``dt``.
+    """
     system, o, tu = ctx.system, ctx.options, ctx.time_unit
-    data, info, dt = _training(ctx)
+    dt = float(system.sample_dt) if dt is None else float(dt)
     m = _clip_history(o["history_steps"])
     hist_time = (m - 1) * dt
     horizon = o["horizon_lyapunov_times"] * tu
     starts = system.initial_conditions(int(o["n_starts"]), ctx.streams.tests)
+    if n_starts is not None:
+        starts = starts[:max(1, int(n_starts))]
     histories, truths, avail = [], [], []
     for s in starts:
         t, y, h = reference_with_horizon(system, s, hist_time + horizon, dt)
@@ -341,11 +368,20 @@ def _setup_forecast(ctx: TaskContext) -> TaskSetup:
     if n < 3:
         raise ReferenceUnavailableError(
             f"reference horizon {ref_bound / tu:.3g} time units leaves no forecast window")
-    history = np.stack(histories)
     truth = np.stack([tr[:n] for tr in truths])
-    y0s = truth[:, 0]
-    t_out = dt * np.arange(n)
-    info = dict(info, forecast_horizon_clipped=bool(h_eff < horizon - 1e-12),
+    return {"history": np.stack(histories), "y0s": truth[:, 0], "t_out": dt * np.arange(n),
+            "t_start": hist_time, "truth": truth, "reference_horizon": ref_bound / tu,
+            "horizon_clipped": bool(h_eff < horizon - 1e-12), "dt": dt}
+
+
+def _setup_forecast(ctx: TaskContext) -> TaskSetup:
+    system, o, tu = ctx.system, ctx.options, ctx.time_unit
+    data, info, dt = _training(ctx)
+    prob = forecast_problem(ctx, dt)
+    history, truth, y0s, t_out = prob["history"], prob["truth"], prob["y0s"], prob["t_out"]
+    ref_bound = prob["reference_horizon"] * tu
+    n = t_out.size
+    info = dict(info, forecast_horizon_clipped=prob["horizon_clipped"],
                 forecast_horizon=float((n - 1) * dt / tu), rollout_dt=dt)
 
     def evaluate(learner):
@@ -362,6 +398,7 @@ def _setup_forecast(ctx: TaskContext) -> TaskSetup:
         idx = np.unique(np.round(np.linspace(0, n - 1, int(o["curve_points"]))).astype(int))
         mean_err = err.mean(axis=0)
         rows = [MetricRow("nrmse", float(mean_err[i]), float(t_lt[i])) for i in idx]
+        rows.append(MetricRow("nrmse_mean", float(np.mean(err))))  # over starts and every output time
         q25, q50, q75 = np.percentile(vpts, [25, 50, 75])
         rows += [MetricRow("valid_prediction_time", float(q50)),
                  MetricRow("valid_prediction_time_iqr", float(q75 - q25))]

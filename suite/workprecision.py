@@ -27,7 +27,10 @@ import pandas as pd
 
 from suite.solver_methods import SOLVER_METHODS, applicable_methods, solve_system
 
-__all__ = ["forecast_error", "solver_ladder", "speedup_at_equal_accuracy", "DEFAULT_LADDERS"]
+__all__ = ["forecast_error", "solver_ladder", "speedup_at_equal_accuracy", "DEFAULT_LADDERS", "JIT_METHODS"]
+
+#: methods compiled by JAX (warmed up once per rung before timing)
+JIT_METHODS = frozenset({"rk4", "dopri5", "verlet", "yoshida4", "etdrk4"})
 
 #: accuracy rungs: relative tolerances for adaptive methods; steps in units of the output spacing for fixed ones
 DEFAULT_LADDERS = {
@@ -82,9 +85,10 @@ def solver_ladder(system, starts, t_eval, reference, scale, *, methods=None, lad
         for rung in ladders[m.kind]:
             accuracy = rung if m.kind == "adaptive" else rung * dt_out
             preds, seconds, nfev, status = [], 0.0, 0, "success"
-            # warm-up (compilation) outside the timing, as for a learner's jitted rollout
-            if name in ("rk4", "dopri5"):
-                solve_system(system, name, t_eval[:3], y0=starts[0], accuracy=accuracy, atol=atol)
+            # warm-up (compilation) outside the timing, as for a learner's jitted rollout; on the full
+            # output grid, since the compiled program depends on the number of steps and outputs
+            if name in JIT_METHODS:
+                solve_system(system, name, t_eval, y0=starts[0], accuracy=accuracy, atol=atol)
             for y0 in starts:
                 t0 = time.perf_counter()
                 sol = solve_system(system, name, t_eval, y0=y0, accuracy=accuracy, atol=atol)
