@@ -1,0 +1,137 @@
+"""Worker reuse in the executors: state reset between cells, per-cell peak memory, faults end a worker.
+
+Worker processes import the cell functions and learners of this module as
+``harness.test_executors:<name>`` (``tests/`` is on their inherited ``sys.path``).
+The executors are driven directly (no store) with ``workers=1``, so cells run
+in the order given and each cell's worker is known from ``info["worker_pid"]``.
+"""
+
+from __future__ import annotations
+
+import os
+import random
+
+import numpy as np
+import pytest
+
+from harness.bad_learners import PolynomialInTime
+from suite.cell import CellOutcome, CellSpec, MetricRow
+from suite.executors import CellTask, LocalExecutor, make_executor
+from surrogates import OverBudgetError
+
+H = "harness.bad_learners"
+T = "harness.test_executors"
+STANDIN = f"{H}:standin_run_cell"
+LEAK_VAR = "LYAPBENCH_TEST_LEAK"
+
+
+def leaky_cell(spec: CellSpec) -> CellOutcome:
+    """A cell function that reports the state a previous cell could have left, then leaves some.
+
+    Metrics: 1/0 whether the previous cell's environment variable, working
+    folder and numpy error setting are still there, and one draw of each
+    global generator *before* any seeding (equal across cells only if the
+    worker resets them). Cell seed 1 also allocates ``learner_params["megabytes"]``.
+    """
+    seen_env = float(LEAK_VAR in os.environ)
+    seen_cwd = float(os.getcwd() == "/")
+    seen_err = float(np.geterr()["divide"] == "raise")
+    draws = [np.random.random(), random.random()]
+    mb = int(spec.learner_params.get("megabytes", 0))
+    if mb:
+        block = np.ones(mb * 2**20 // 8)  # touched pages: resident
+        block.sum()
+        del block
+    os.environ[LEAK_VAR] = str(spec.seed)
+    os.chdir("/")
+    np.seterr(divide="raise")
+    np.random.seed(12345 + spec.seed)
+    random.seed(12345 + spec.seed)
+    return CellOutcome("ok", metrics=[MetricRow("seen_env", seen_env), MetricRow("seen_cwd", seen_cwd),
+                                      MetricRow("seen_seterr", seen_err), MetricRow("np_draw", draws[0]),
+                                      MetricRow("py_draw", draws[1])])
+
+
+class BudgetStopLearner(PolynomialInTime):
+    """Ends its own fit with OverBudgetError (a graceful ``timeout`` inside the worker)."""
+
+    def _fit(self, data, physics, budget, seed):
+        raise OverBudgetError("stopped by its own budget check")
+
+
+def _spec(learner, seed=0, **params):
+    return CellSpec(system="lorenz63", task="reconstruct", learner=learner, seed=seed, learner_params=params)
+
+
+def _run(executor, tasks):
+    got = []
+    executor.run(tasks, got.append)
+    by_key = {r.key: r for r in got}
+    assert len(by_key) == len(tasks)  # every cell reported exactly once
+    return [by_key[t.key] for t in tasks]
+
+
+def test_reused_worker_resets_state_and_measures_peak_memory_per_cell():
+    ex = LocalExecutor(f"{T}:leaky_cell", workers=1)  # default: one worker for every cell
+    tasks = [CellTask(f"c{s}", _spec("x", s, megabytes=400 if s == 1 else 0)) for s in range(3)]
+    res = _run(ex, tasks)
+    assert ex.workers_started == 1
+    assert len({r.outcome.info["worker_pid"] for r in res}) == 1
+    assert [r.outcome.cost["worker_reused"] for r in res] == [0, 1, 1]
+    metrics = [{m.metric: m.value for m in r.outcome.metrics} for r in res]
+    for m in metrics:  # nothing the previous cell left is visible
+        assert (m["seen_env"], m["seen_cwd"], m["seen_seterr"]) == (0.0, 0.0, 0.0), m
+    assert len({(m["np_draw"], m["py_draw"]) for m in metrics[1:]}) == 1  # generators reset alike
+    peaks = [r.outcome.cost["peak_memory_mb"] for r in res]
+    if all(r.outcome.cost["peak_memory_per_cell"] == 1 for r in res):  # Linux /proc available
+        # 400 MB touched in cell 1 only; the peak is reset before cell 2 (VmHWM after clear_refs)
+        assert peaks[1] > peaks[0] + 350 and peaks[2] < peaks[1] - 350, peaks
+    else:  # process peak (ru_maxrss): never decreases
+        assert peaks[2] >= peaks[1] > peaks[0] + 350, peaks
+
+
+def test_faults_take_the_worker_down_and_reuse_leaves_accuracy_unchanged():
+    poly = f"{H}:PolynomialInTime"
+    spec = lambda learner, seed=0: CellSpec(  # noqa: E731
+        system="lorenz63", task="reconstruct", learner=learner, fraction=0.3, noise=0.02, seed=seed,
+        learner_params={"degree": 7} if learner == poly else {})
+    tasks = [CellTask("p0", spec(poly, 0), memory_mb=4000),
+             CellTask("p1", spec(poly, 1), memory_mb=4000),
+             CellTask("hog", spec(f"{H}:MemoryHog"), memory_mb=4000),
+             CellTask("p2", spec(poly, 2), memory_mb=4000),
+             CellTask("stop", spec(f"{T}:BudgetStopLearner"), memory_mb=4000),
+             CellTask("p3", spec(poly, 3), memory_mb=4000)]
+    ex = LocalExecutor(STANDIN, workers=1)
+    res = {r.key: r for r in _run(ex, tasks)}
+    pid = {k: r.outcome.info["worker_pid"] for k, r in res.items()}
+    assert res["hog"].outcome.status == "failed" and res["hog"].outcome.error.startswith("memory:")
+    assert res["stop"].outcome.status == "timeout"
+    assert {res[k].outcome.status for k in ("p0", "p1", "p2", "p3")} == {"ok"}
+    # one worker until the memory failure; a fresh one until the in-cell timeout; then another
+    assert pid["p0"] == pid["p1"] == pid["hog"] != pid["p2"] == pid["stop"] != pid["p3"] != pid["p0"]
+    assert ex.workers_started == 3
+    assert [res[k].outcome.cost["worker_reused"] for k in ("p0", "p1", "p2", "p3")] == [0, 1, 0, 0]
+    # reuse on vs off: the reused cell p1 gives bitwise the same figures in a fresh worker
+    fresh = _run(LocalExecutor(STANDIN, workers=1, cells_per_worker=1), [tasks[1]])[0]
+    assert fresh.outcome.cost["worker_reused"] == 0
+    assert fresh.outcome.info["worker_pid"] != pid["p1"]
+    assert fresh.outcome.metrics == res["p1"].outcome.metrics and fresh.outcome.metrics
+
+
+def test_cells_per_worker_is_checked_and_passed_to_both_executors():
+    assert make_executor("local").cells_per_worker == 0  # default: no limit
+    assert make_executor("local", cells_per_worker=3).cells_per_worker == 3
+    assert make_executor("dask", cells_per_worker=1).cells_per_worker == 1
+    with pytest.raises(ValueError, match="cells per worker"):
+        make_executor("local", cells_per_worker=-1)
+
+
+def test_cli_refuses_a_negative_cells_per_worker(tmp_path, capsys):
+    from suite.cli import main
+
+    grid = tmp_path / "g.toml"
+    grid.write_text(f'[grid]\nsystems = ["lorenz63"]\ntasks = ["reconstruct"]\nlearners = ["{H}:PolynomialInTime"]\n')
+    assert main(["run", str(grid), "--store", str(tmp_path / "s.sqlite"), "--cells-per-worker", "-1"]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "-1" in err
+    assert not (tmp_path / "s.sqlite").exists()
