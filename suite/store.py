@@ -192,6 +192,12 @@ class Store:
             raise FileNotFoundError(f"store {str(path)!r} does not exist")
         if exists:
             cls._check_header(path)
+        elif not readonly:
+            try:
+                path.parent.mkdir(parents=True, exist_ok=True)
+            except OSError as exc:  # a file where a folder should be, no permission, ...
+                raise StoreError(f"store {str(path)!r}: cannot create its folder "
+                                 f"({exc.strerror or type(exc).__name__})") from None
         lock_fd = None
         if lock:
             path.parent.mkdir(parents=True, exist_ok=True)
