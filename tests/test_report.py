@@ -206,3 +206,15 @@ def test_cli_writes_a_report_without_solvers(tmp_path, store, capsys):
     assert (tmp_path / "r" / "summary.md").exists()
     assert "no solver ladder was run" in (tmp_path / "r" / "summary.md").read_text()
     assert not list((tmp_path / "r").glob(".*"))  # no temporary folder left behind
+
+
+def test_a_store_of_failures_only_still_reports(tmp_path):
+    path = tmp_path / "bad.sqlite"
+    with Store.open(path, create=True) as st:
+        spec = CellSpec("lorenz63", "forecast", "alpha", task_options=OPTS)
+        _record(st, spec, CellOutcome("timeout", error="OverBudgetError: fit ran past 5 s"))
+    written = write_report(path, tmp_path / "r", ladder=False)
+    md = written["summary.md"].read_text()
+    assert "timeout 1" in md and "1 timeout of 1 cells" in md and "fit ran past 5 s" in md
+    assert "error against horizon: not drawn (no successful forecast cell)" in md
+    assert not any(n.endswith(".png") for n in written)

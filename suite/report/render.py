@@ -27,7 +27,10 @@ from .tables import (METRIC_LABELS, build_tables, cell_frame, forecast_error_of_
                      table_markdown)
 from .workplane import cell_speedups, forecast_ladders, problem_key, problem_slug
 
-__all__ = ["write_report", "check_out_dir"]
+__all__ = ["write_report", "check_out_dir", "FIGURE_PREFIXES"]
+
+#: File-name stems of the report's figures (an earlier report's figures with these stems are replaced)
+FIGURE_PREFIXES = ("error_vs_horizon_", "sparsity_", "noise_", "work_precision_", "critical_difference_")
 
 
 def check_out_dir(out_dir) -> Path:
@@ -147,6 +150,10 @@ def write_report(store_path, out_dir, *, queries: int = 100, ladder: bool | pd.D
         for name, p in made.items():
             os.replace(p, out / name)
             final[name] = out / name
+        for ext in ("png", "svg"):  # figures of an earlier report that this one did not redraw
+            for old in out.glob(f"*.{ext}"):
+                if old.name not in final and old.name.startswith(FIGURE_PREFIXES):
+                    old.unlink(missing_ok=True)
     finally:
         shutil.rmtree(tmp, ignore_errors=True)
     if keep_figures:
@@ -321,7 +328,9 @@ def _summary(store_path, now, version, cells, tables, tests, lad, speed, notes_l
     tex.append(r"\item " + _tx("(no rank test)")) if not tests else None
     tex.append(r"\end{itemize}")
     md += ["## Figures", ""] + fig_lines + [""]
-    tex.append(r"\end{document}")
+    tex += [r"\section*{Figures}", r"\begin{itemize}"]
+    tex += [r"\item " + _tx(line.lstrip("- ").replace("`", "")) for line in fig_lines]
+    tex += [r"\end{itemize}", r"\end{document}"]
     return "\n".join(md) + "\n", "\n".join(tex) + "\n"
 
 
