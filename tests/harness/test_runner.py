@@ -71,7 +71,7 @@ learners = ["{M}:PolynomialInTime"]
 seeds = [0, 1]
 """)
     store = tmp_path / "s.sqlite"
-    first = run_grid(grid, store, function=CELL, workers=2, cells_per_worker=2, progress=False)
+    first = run_grid(grid, store, function=CELL, workers=1, progress=False)  # one reused worker
     assert (first.ran, first.skipped) == (2, 0)
     before = tidy_table(store)
     second = run_grid(grid, store, function=CELL, workers=2, progress=False)
@@ -101,17 +101,23 @@ seeds = [3]
 degree = 7
 """)
     local, dask = tmp_path / "local.sqlite", tmp_path / "dask.sqlite"
-    run_grid(grid, local, function=CELL, executor="local", workers=1, cells_per_worker=2, progress=False)
-    run_grid(grid, dask, function=CELL, executor="dask", workers=2, progress=False)
+    run_grid(grid, local, function=CELL, executor="local", workers=1, progress=False)
+    # one Dask worker: its one worker subprocess serves both cells
+    run_grid(grid, dask, function=CELL, executor="dask", workers=1, progress=False)
     a, b = _accuracy(local), _accuracy(dask)
     assert len(a) == 2 * 3 and set(a["status"]) == {"ok"}
     assert a.equals(b)  # bitwise-equal figures: same key, same seed, same computation
+    with Store.open(dask, readonly=True) as st:
+        dcells = st.cells()
+    assert len({c["info"]["worker_pid"] for c in dcells}) == 1
+    assert sorted(c["cost"]["worker_reused"] for c in dcells) == [0, 1]
     with Store.open(local, readonly=True) as st:
         infos = [c["info"] for c in st.cells()]
         manifest = st.manifests()[0]
     assert {i["OPENBLAS_NUM_THREADS"] for i in infos} == {"1"}  # one BLAS thread per worker
     assert all("intra_op_parallelism_threads=1" in i["XLA_FLAGS"] for i in infos)
     assert manifest["grid"]["sha256"] == load_grid(grid).sha256 and manifest["executor"] == "local"
+    assert manifest["cells_per_worker"] == 0  # the default: workers reused without limit
     assert manifest["packages"]["numpy"]
 
 
@@ -156,8 +162,8 @@ seeds = [0, 1, 2, 3]
     _, alive = psutil.wait_procs(children, timeout=30)
     assert not alive  # the orphaned worker stops when its parent's pipe closes
 
-    # the resumed run may reuse one worker for all remaining cells (isolation is not under test here)
-    out = subprocess.run(cmd + ["--resume", "--json", "--cells-per-worker", "4"], cwd=tmp_path, env=env, capture_output=True,
+    # the resumed run reuses one worker for all remaining cells (the default)
+    out = subprocess.run(cmd + ["--resume", "--json"], cwd=tmp_path, env=env, capture_output=True,
                          text=True, timeout=300)
     assert out.returncode == 0, out.stderr
     with Store.open(store, readonly=True) as st:
