@@ -44,6 +44,7 @@ from __future__ import annotations
 import hashlib
 import itertools
 import math
+import re
 import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -53,6 +54,7 @@ from suite.cell import CellSpec
 __all__ = ["Grid", "GridError", "load_grid", "parse_grid", "DEFAULT_SECONDS_PER_CELL"]
 
 DEFAULT_SECONDS_PER_CELL = 600.0
+MAX_CELLS = 1_000_000  # a larger product is a typo, not a study (and would exhaust memory when expanded)
 
 _GRID_KEYS = ("systems", "tasks", "learners", "fractions", "noise", "physics", "seeds")
 _BUDGET_KEYS = ("seconds_per_cell", "iterations_per_cell", "memory_mb_per_cell")
@@ -128,7 +130,8 @@ class _Checker:
         self.label = label
 
     def fail(self, key: str, reason: str):
-        raise GridError(f"{self.label}: {key}: {reason}")
+        key = "".join(c if c.isprintable() else repr(c)[1:-1] for c in str(key))  # a key may hold "\n"
+        raise GridError(" ".join(f"{self.label}: {key}: {reason}".splitlines()))
 
     def unknown_keys(self, table: dict, allowed, where: str):
         for k in table:
@@ -220,7 +223,12 @@ def parse_grid(text: str, label: str = "<grid>", name: str = "grid") -> Grid:
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise GridError(f"{label}: not valid TOML ({exc})") from None
+        where = ""  # quote the offending line: it names the key (a duplicate key, a bad value)
+        m = re.search(r"at line (\d+)", str(exc))
+        lines = text.splitlines()
+        if m and 0 < int(m.group(1)) <= len(lines) and lines[int(m.group(1)) - 1].strip():
+            where = f": {lines[int(m.group(1)) - 1].strip()[:80]!r}"
+        raise GridError(" ".join(f"{label}: not valid TOML ({exc}){where}".splitlines())) from None
     c.unknown_keys(doc, _TOP_KEYS, "")
     if "grid" not in doc:
         c.fail("grid", "missing table [grid]")
@@ -273,6 +281,9 @@ def parse_grid(text: str, label: str = "<grid>", name: str = "grid") -> Grid:
     noise = c.list_of(g.get("noise", [0.0]), "grid.noise", "number", check_noise)
     physics = c.list_of(g.get("physics", ["none"]), "grid.physics", "str", check_physics)
     seeds = c.list_of(g.get("seeds", [0]), "grid.seeds", "int", check_seed)
+    n_cells = math.prod(map(len, (systems, tasks, learners, fractions, noise, physics, seeds)))
+    if n_cells > MAX_CELLS:
+        c.fail("grid", f"{n_cells} cells in the product of its lists, more than the limit of {MAX_CELLS}")
 
     # [budget]
     b = c.table(doc.get("budget", {}), "budget")
