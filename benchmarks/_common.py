@@ -65,6 +65,21 @@ def timed(fn, repeats: int = 5, warmup: int = 0):
     return statistics.median(samples), samples, out
 
 
+def timed_cpu(fn, repeats: int = 5):
+    """Medians of wall seconds and of this process's CPU seconds over ``repeats`` runs of ``fn()``.
+
+    On a machine shared with other jobs a single-threaded run's CPU seconds are
+    close to what it would take on an idle core; wall seconds depend on the load.
+    """
+    walls, cpus = [], []
+    for _ in range(repeats):
+        c0, w0 = time.process_time(), time.perf_counter()
+        fn()
+        walls.append(time.perf_counter() - w0)
+        cpus.append(time.process_time() - c0)
+    return statistics.median(walls), statistics.median(cpus)
+
+
 def write_results(name: str, payload: dict, table: list[dict], notes: str = "", quick: bool = False) -> Path:
     """Write results/perf/<name>.json and .md (``<name>.quick.*`` for --quick runs) and print the table."""
     import numpy as np
