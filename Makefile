@@ -31,7 +31,7 @@ test-all: $(STAMP)
 	$(BIN)/python -m pytest -q -m ''
 
 bench: $(STAMP)
-	$(BIN)/python -m pytest -q benchmarks -m '' --benchmark-only
+	$(BIN)/python benchmarks/run_all.py $(if $(QUICK),--quick)
 
 clean:
 	rm -rf $(VENV) build *.egg-info .pytest_cache
