@@ -22,9 +22,10 @@ from suite.export import tidy_table
 
 # tiny forecast options so that a real solver ladder is cheap
 OPTS = {"horizon_lyapunov_times": 1.0, "n_starts": 2, "history_steps": 3}
-HORIZONS = np.linspace(0.0, 1.0, 5)
+# the learners' error curves end at 3.1 Lyapunov times (alpha's median VPT there: censored)
+HORIZONS = np.linspace(0.0, 3.1, 5)
 # per learner: (nrmse_mean, VPT base in Lyapunov times, inference s/LT, train s); alpha best, gamma worst
-LEARNERS = {"alpha": (0.05, 3.0, 1e-4, 10.0), "beta": (0.06, 2.8, 2e-4, 1.0), "gamma": (0.5, 0.5, 1e-3, 0.1)}
+LEARNERS = {"alpha": (0.05, 3.0, 1e-4, 100.0), "beta": (0.06, 2.8, 2e-4, 1.0), "gamma": (0.5, 0.5, 1e-3, 0.1)}
 # a hand-made solver ladder: error against seconds per Lyapunov time
 LADDER = pd.DataFrame({
     "problem": "lorenz63 " + json.dumps(OPTS, sort_keys=True), "system": "lorenz63", "method": "DOP853",
@@ -81,6 +82,11 @@ def store(tmp_path_factory):
 
 
 @pytest.fixture(scope="module")
+def cells(store):
+    return cell_frame(tidy_table(store))
+
+
+@pytest.fixture(scope="module")
 def report(store, tmp_path_factory):
     out = tmp_path_factory.mktemp("report") / "out"
     return write_report(store, out, ladder=LADDER, queries=100, keep_figures=True)
@@ -128,22 +134,23 @@ def test_figures_have_labelled_axes(report):
     assert by_prefix("critical_difference").axes[0].get_xlabel() == "average rank (1 = best)"
 
 
-def test_speedup_column_on_a_hand_made_ladder(store):
-    cells = cell_frame(tidy_table(store))
+def test_speedup_column_on_a_hand_made_ladder(cells):
     speed = cell_speedups(cells, LADDER, queries=100)
     tables = build_tables(cells, speed, queries=100)
     t = next(t for t in tables if t.task == "forecast" and t.fraction == 1.0 and t.noise == 0.0)
     rows = {r.learner: r for r in t.rows}
     # alpha: error 0.05 -> cheapest rung with error <= 0.05 costs 0.1 s/LT; 0.1 / 1e-4 = 1000 (closed form)
     assert rows["alpha"].speedup == pytest.approx(1000.0)
-    # with training: 1e-4 + 10 s / 100 queries / 1 Lyapunov time = 0.1001 s per query -> 0.1 / 0.1001
-    assert rows["alpha"].speedup_with_training == pytest.approx(0.1 / 0.1001)
+    # with training: 1e-4 + 100 s / 100 queries / 3.1 Lyapunov times per query -> 0.1 / that
+    assert rows["alpha"].speedup_with_training == pytest.approx(0.1 / (1e-4 + 1.0 / 3.1))
     # gamma: error 0.5 -> rung 1e-3 s/LT; 1e-3 / 1e-3 = 1
     assert rows["gamma"].speedup == pytest.approx(1.0)
     assert rows["spline"].counts["not_applicable"] == 3 and math.isnan(rows["spline"].speedup)
     assert any("just run the solver" not in n and "training is shared over 100" in n and "alpha" in n
                for n in t.notes)
     assert any("below one Lyapunov time" in n and "gamma" in n for n in t.notes)
+    assert any("end of the forecast horizon (3.1 Lyapunov times) for alpha:" in n and "censored" in n
+               for n in t.notes)
 
 
 def test_summary_states_failures_and_non_significant_differences(report):
@@ -164,16 +171,15 @@ def test_summary_states_failures_and_non_significant_differences(report):
     assert r"\begin{tabular}" in tex and r"\end{document}" in tex
 
 
-def test_rank_tests_per_task(store):
-    tests = rank_tests(cell_frame(tidy_table(store)))
+def test_rank_tests_per_task(cells):
+    tests = rank_tests(cells)
     t = tests["forecast"]
     assert t.n_blocks == 4 and set(t.learners) == {"alpha", "beta", "gamma"}
     assert dict(zip(t.learners, t.average_ranks)) == {"alpha": 1.0, "beta": 2.0, "gamma": 3.0}
     assert "reconstruct" in tests and tests["reconstruct"].n_blocks == 1
 
 
-def test_real_solver_ladder_on_the_forecast_problem(store):
-    cells = cell_frame(tidy_table(store))
+def test_real_solver_ladder_on_the_forecast_problem(cells):
     lad, notes = forecast_ladders(cells, n_starts=2, methods=("DOP853",),
                                   ladders={"adaptive": (1e-3, 1e-8), "fixed": (1.0,)})
     assert notes == []
@@ -201,20 +207,30 @@ def test_cli_bad_input_exits_2(tmp_path, capsys, store):
     assert main(["report", str(store), "--out", str(tmp_path / "r"), "--queries", "0"]) == 2
 
 
-def test_cli_writes_a_report_without_solvers(tmp_path, store, capsys):
-    assert main(["report", str(store), "--out", str(tmp_path / "r"), "--no-solvers"]) == 0
-    assert (tmp_path / "r" / "summary.md").exists()
-    assert "no solver ladder was run" in (tmp_path / "r" / "summary.md").read_text()
-    assert not list((tmp_path / "r").glob(".*"))  # no temporary folder left behind
-
-
-def test_a_store_of_failures_only_still_reports(tmp_path):
+@pytest.fixture
+def timeout_store(tmp_path):
     path = tmp_path / "bad.sqlite"
     with Store.open(path, create=True) as st:
         spec = CellSpec("lorenz63", "forecast", "alpha", task_options=OPTS)
         _record(st, spec, CellOutcome("timeout", error="OverBudgetError: fit ran past 5 s"))
-    written = write_report(path, tmp_path / "r", ladder=False)
+    return path
+
+
+def test_a_store_of_failures_only_still_reports(tmp_path, timeout_store):
+    written = write_report(timeout_store, tmp_path / "r", ladder=False)
     md = written["summary.md"].read_text()
     assert "timeout 1" in md and "1 timeout of 1 cells" in md and "fit ran past 5 s" in md
     assert "error against horizon: not drawn (no successful forecast cell)" in md
     assert not any(n.endswith(".png") for n in written)
+
+
+def test_cli_writes_a_report(tmp_path, timeout_store, capsys):
+    out = tmp_path / "r"
+    out.mkdir()
+    (out / "sparsity_old_forecast.png").write_bytes(b"stale")  # a figure of an earlier report
+    assert main(["report", str(timeout_store), "--out", str(out), "--no-solvers", "--queries", "7"]) == 0
+    assert "wrote" in capsys.readouterr().out
+    assert json.loads((out / "manifest.json").read_text())["queries"] == 7
+    assert (out / "summary.md").exists() and (out / "tables.csv").exists()
+    assert not (out / "sparsity_old_forecast.png").exists()
+    assert not list(out.glob(".*"))  # no temporary folder left behind

@@ -49,6 +49,7 @@ def error_vs_horizon(curves: pd.DataFrame, system: str, *, threshold: float = 0.
             continue
         w = g.pivot_table(index="horizon", columns="seed", values="value", aggfunc="median").sort_index()
         h = w.index.to_numpy(float)
+        w = w.where(w > 0)  # an exact zero (the start state itself) has no place on a log axis
         st = series_style(i)
         ax.plot(h, w.median(axis=1), color=st["color"], linestyle=st["linestyle"], marker=st["marker"],
                 markersize=3, label=f"{name} ({w.shape[1]} seed{'s' if w.shape[1] != 1 else ''})")
@@ -66,10 +67,15 @@ def error_vs_horizon(curves: pd.DataFrame, system: str, *, threshold: float = 0.
 
 
 def sweep_curve(points: pd.DataFrame, system: str, task: str, metric: str, axis: str, *, learner_order=None,
-                subtitle: str = ""):
-    """``points``: columns learner, seed, ``axis`` (fraction or noise), headline."""
+                subtitle: str = "", levels=None):
+    """``points``: columns learner, seed, ``axis`` (fraction or noise), headline (ok cells only).
+
+    ``levels``: every level of ``axis`` in the study; a learner without a
+    result at some level (failed, diverged, ...) says so in the legend.
+    """
     fig, ax = new_figure()
     learners = learner_order or sorted(points["learner"].unique())
+    all_levels = sorted(points[axis].unique()) if levels is None else sorted(levels)
     for i, name in enumerate(learners):
         g = points[points["learner"] == name]
         if g.empty:
@@ -77,8 +83,10 @@ def sweep_curve(points: pd.DataFrame, system: str, task: str, metric: str, axis:
         stat = g.groupby(axis)["headline"].agg(["median", "min", "max", "count"]).sort_index()
         x = stat.index.to_numpy(float)
         st = series_style(i)
+        missing = [v for v in all_levels if v not in set(x)]
+        label = name + (f" (no result at {', '.join(f'{v:g}' for v in missing)})" if missing else "")
         ax.plot(x, stat["median"], color=st["color"], linestyle=st["linestyle"], marker=st["marker"],
-                markersize=5, label=name)
+                markersize=5, label=label)
         if (stat["count"] > 1).any():
             ax.fill_between(x, stat["min"], stat["max"], color=st["color"], alpha=0.2, linewidth=0)
     if axis == "fraction":
@@ -95,6 +103,8 @@ def sweep_curve(points: pd.DataFrame, system: str, task: str, metric: str, axis:
         ax.set_xlabel("noise level (attractor std)")
     if metric == "valid_prediction_time":
         ax.axhline(1.0, color=THRESHOLD_COLOUR, linestyle=":", linewidth=1.0)
+        ax.annotate("1 Lyapunov time", xy=(0.01, 1.0), xycoords=("axes fraction", "data"), ha="left",
+                    va="bottom", fontsize=8, color=THRESHOLD_COLOUR)
     elif np.nanmin(points["headline"].to_numpy(float)) > 0:
         ax.set_yscale("log")
     ax.set_ylabel(METRIC_LABELS.get(metric, metric))
@@ -111,12 +121,13 @@ def work_precision(ladder: pd.DataFrame, learners: pd.DataFrame, title: str, *, 
     and optionally ``setting`` (a label: one marker shape per setting, one colour per learner)."""
     fig, ax = new_figure(7.2, 4.6)
     ok = ladder[(ladder["status"] == "success") & np.isfinite(ladder["error"])]
-    grey = ("#000000", "#555555", "#888888")
+    grey = ("#000000", "#666666")
+    solver_markers = ("x", "+", "1", "|", "2", "3", "4", "_")
     for j, (method, g) in enumerate(ok.groupby("method", sort=False)):
         g = g.sort_values("error")
-        ax.plot(np.maximum(g["error"], 1e-16), g["seconds_per_lyapunov_time"], color=grey[j % 3],
-                linestyle=("-", "--", "-.", ":")[j % 4], marker=".", linewidth=1.0,
-                label=f"solver {method}")
+        ax.plot(np.maximum(g["error"], 1e-16), g["seconds_per_lyapunov_time"], color=grey[j % 2],
+                linestyle=("-", "--", "-.", ":")[j % 4], marker=solver_markers[j % len(solver_markers)],
+                markersize=7, linewidth=1.0, label=f"solver {method}")
     names = learner_order or sorted(learners["learner"].unique())
     settings = list(dict.fromkeys(learners["setting"])) if "setting" in learners else [""]
     many = len(settings) > 1
@@ -150,7 +161,7 @@ def critical_difference(test, title: str):
     k = len(test.learners)
     order = np.argsort(test.average_ranks)
     ranks = np.asarray(test.average_ranks, float)
-    height = 1.6 + 0.28 * k
+    height = 2.0 + 0.28 * k
     fig, ax = new_figure(7.0, height)
     ax.grid(False)
     ax.set_xlim(0.5, k + 0.5)
@@ -186,6 +197,6 @@ def critical_difference(test, title: str):
         level -= 0.2
     p = test.p_value
     verdict = ("not significant: ranks may be noise" if not test.significant() else "significant")
-    ax.set_title(f"{title}\nFriedman p = {p:.3g} ({verdict}); "
+    ax.set_title(f"{title}\nFriedman p = {p:.3g} ({verdict})\n"
                  "learners joined by a bar are not significantly different", fontsize=9)
     return fig

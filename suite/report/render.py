@@ -220,6 +220,8 @@ def _figures(cells, tidy, lad, tests, tmp, made, kept, keep) -> list[str]:
                 sel = sel.assign(learner=sel["learner"] + " [" + sel["physics"] + "]")
             fig = F.sweep_curve(sel[["learner", "seed", axis, "headline"]], system, task, metric, axis,
                                 subtitle=f"{other} {level:g}",
+                                levels=cells[(cells["system"] == system) & (cells["task"] == task)
+                                             & (cells[other] == level)][axis].unique(),
                                 learner_order=_ordered(sel["learner"], learners))
             save(fig, f"{'sparsity' if axis == 'fraction' else 'noise'}_{_slug(system)}_{task}",
                  f"{METRIC_LABELS.get(metric, metric)} against {'data fraction' if axis == 'fraction' else 'noise level'}, "

@@ -124,6 +124,7 @@ class TableRow:
     speedup_with_training: float
     counts: dict
     errors: list
+    horizon: float = math.nan  # forecast horizon of the cells (Lyapunov times)
 
 
 @dataclass
@@ -193,7 +194,7 @@ def build_tables(cells: pd.DataFrame, speedups: pd.DataFrame | None = None, *, q
                 train_seconds=_median(ok["train_seconds"]),
                 inference_seconds=_median(ok["inference_seconds_per_lyapunov_time"]),
                 speedup=_median(ok["speedup"]), speedup_with_training=_median(ok["speedup_with_training"]),
-                counts=counts, errors=errors))
+                counts=counts, errors=errors, horizon=_median(ok["horizon"])))
         t.notes = _notes(t)
         tables.append(t)
     return tables
@@ -221,6 +222,13 @@ def _notes(t: Table) -> list[str]:
         short = [r.learner for r in t.rows if np.isfinite(r.median) and r.median < 1.0]
         if short:
             notes.append(f"Valid prediction time below one Lyapunov time (no useful forecast): {', '.join(short)}.")
+        capped = [r.learner for r in t.rows if np.isfinite(r.median) and np.isfinite(r.horizon)
+                  and r.median >= r.horizon * (1 - 1e-6)]
+        if capped:
+            h = max(r.horizon for r in t.rows if np.isfinite(r.horizon))
+            notes.append(f"Valid prediction time reaches the end of the forecast horizon ({_fmt(h)} Lyapunov "
+                         f"times) for {', '.join(capped)}: a lower bound (censored), not a measurement; "
+                         "a longer horizon would separate these learners.")
     slow = [r.learner for r in t.rows if np.isfinite(r.speedup) and r.speedup < 1.0]
     if slow:
         notes.append(f"Speed-up below 1 — just run the solver: {', '.join(slow)}.")
