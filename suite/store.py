@@ -240,7 +240,11 @@ class Store:
     @staticmethod
     def _take_lock(path: Path) -> int:
         lock_path = path.with_name(path.name + ".lock")
-        fd = os.open(lock_path, os.O_RDWR | os.O_CREAT, 0o644)
+        try:
+            fd = os.open(lock_path, os.O_RDWR | os.O_CREAT, 0o644)
+        except OSError as exc:  # a read-only or vanished folder
+            raise StoreError(f"store {str(path)!r}: cannot create its lock file {str(lock_path)!r} "
+                             f"({exc.strerror or type(exc).__name__})") from None
         try:
             fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
         except BlockingIOError:

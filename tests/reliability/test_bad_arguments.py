@@ -135,3 +135,40 @@ def test_the_installed_entry_point_exits_2_with_one_line(files):
         r = subprocess.run([_lyapbench(), *argv], capture_output=True, text=True, timeout=300, cwd=files)
         assert r.returncode == 2, r
         assert r.stderr.count("\n") == 1 and "Traceback" not in r.stderr, r.stderr
+
+
+@pytest.fixture
+def read_only_folder(tmp_path):
+    """A folder on a read-only tmpfs: unwritable even for root (a chmod would not stop root)."""
+    ro = tmp_path / "ro"
+    ro.mkdir()
+    r = subprocess.run(["mount", "-t", "tmpfs", "-o", "ro,size=64k", "tmpfs", str(ro)], capture_output=True,
+                       text=True)
+    if r.returncode != 0:
+        pytest.skip(f"cannot mount a read-only tmpfs here ({r.stderr.strip()})")
+    try:
+        yield ro
+    finally:
+        subprocess.run(["umount", "-l", str(ro)], check=False)
+
+
+UNWRITABLE = {
+    "solve out": ["solve", "lorenz63", "--t-end", "1", "--out", "{ro}/x.csv"],
+    "export out": ["export", "{d}/s.sqlite", "--out", "{ro}/x.csv"],
+    "report out": ["report", "{d}/s.sqlite", "--out", "{ro}/rep", "--no-solvers"],
+    "run store": ["run", "{d}/g.toml", "--store", "{ro}/s.sqlite", "--quiet"],
+    "run store new folder": ["run", "{d}/g.toml", "--store", "{ro}/sub/s.sqlite", "--quiet"],
+}
+
+
+@pytest.mark.parametrize("name", list(UNWRITABLE))
+def test_unwritable_output_is_one_line_and_exit_2(name, files, read_only_folder, capsys):
+    from suite.store import Store
+    with Store.open(files / "s.sqlite", create=True):
+        pass
+    argv = [a.format(d=files, ro=read_only_folder) for a in UNWRITABLE[name]]
+    code = main(argv)
+    err = capsys.readouterr().err
+    assert code == 2, (argv, err)
+    assert err.startswith("error:") and err.count("\n") == 1 and "Traceback" not in err, err
+    assert not any(read_only_folder.iterdir())
