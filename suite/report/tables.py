@@ -125,6 +125,7 @@ class TableRow:
     counts: dict
     errors: list
     horizon: float = math.nan  # forecast horizon of the cells (Lyapunov times)
+    solver: str = ""  # the solver rung(s) the speed-up is measured against
 
 
 @dataclass
@@ -163,10 +164,15 @@ def build_tables(cells: pd.DataFrame, speedups: pd.DataFrame | None = None, *, q
         return []
     cells = cells.copy()
     if speedups is not None and len(speedups):
-        cells = cells.merge(speedups[["cell", "speedup", "speedup_with_training"]], on="cell", how="left")
+        cols = [c for c in ("cell", "speedup", "speedup_with_training", "solver_method", "solver_accuracy")
+                if c in speedups]
+        cells = cells.merge(speedups[cols], on="cell", how="left")
     else:
         cells["speedup"] = math.nan
         cells["speedup_with_training"] = math.nan
+    for c in ("solver_method", "solver_accuracy"):
+        if c not in cells:
+            cells[c] = None
     tables = []
     keys = ["system", "task", "fraction", "noise", "physics"]
     order = cells[keys].drop_duplicates().sort_values(["system", "task", "fraction", "noise", "physics"],
@@ -194,7 +200,9 @@ def build_tables(cells: pd.DataFrame, speedups: pd.DataFrame | None = None, *, q
                 train_seconds=_median(ok["train_seconds"]),
                 inference_seconds=_median(ok["inference_seconds_per_lyapunov_time"]),
                 speedup=_median(ok["speedup"]), speedup_with_training=_median(ok["speedup_with_training"]),
-                counts=counts, errors=errors, horizon=_median(ok["horizon"])))
+                counts=counts, errors=errors, horizon=_median(ok["horizon"]),
+                solver=", ".join(sorted({f"{m} at {a:.3g}" for m, a in zip(ok["solver_method"], ok["solver_accuracy"])
+                                         if isinstance(m, str) and np.isfinite(a)}))))
         t.notes = _notes(t)
         tables.append(t)
     return tables
@@ -237,6 +245,10 @@ def _notes(t: Table) -> list[str]:
     if slow_t:
         notes.append(f"Cheaper than the solver per rollout, but not once training is shared over {t.queries} "
                      f"queries: {', '.join(slow_t)}.")
+    against = [f"{r.learner}: {r.solver}" for r in t.rows if r.solver]
+    if against:
+        notes.append("Speed-up measured against the cheapest solver rung at least as accurate (method at rtol "
+                     "or step): " + "; ".join(against) + ".")
     single = [r.learner for r in t.rows if r.n_seeds == 1]
     if single:
         notes.append(f"Resting on a single seed (no spread, no confidence interval): {', '.join(single)}.")
