@@ -135,3 +135,50 @@ def test_cli_refuses_a_negative_cells_per_worker(tmp_path, capsys):
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "-1" in err
     assert not (tmp_path / "s.sqlite").exists()
+
+
+_FIT_MLP = """
+import hashlib, sys, time
+import numpy as np
+import solvers, jax
+from surrogates import Budget, Physics, TrainingData
+from surrogates.registry import make_learner
+t = np.linspace(0.0, 2.0, 201)
+y = np.stack([np.sin(t), np.cos(t), t], 1)
+learner = make_learner("mlp", adam_steps=20, lbfgs_steps=5, chunk_size=10, patience=100)
+c = time.process_time()
+learner.fit(TrainingData.from_arrays(t, y), Physics(), budget=Budget(max_iterations=20), seed=0)
+pred = np.ascontiguousarray(learner.predict(t[::7]), dtype=np.float64)
+print(jax.config.jax_compilation_cache_dir, hashlib.sha256(pred.tobytes()).hexdigest(), time.process_time() - c)
+"""
+
+
+def _fit_mlp(env_value):
+    import subprocess
+    import sys
+
+    env = dict(os.environ, LYAPBENCH_JAX_CACHE=str(env_value), OPENBLAS_NUM_THREADS="1")
+    out = subprocess.run([sys.executable, "-c", _FIT_MLP], env=env, capture_output=True, text=True, timeout=600)
+    assert out.returncode == 0, out.stderr[-2000:]
+    cache_dir, digest, cpu = out.stdout.split()
+    return cache_dir, digest, float(cpu)
+
+
+def test_jax_cache_can_be_turned_off():
+    import subprocess
+    import sys
+
+    code = "import solvers, jax; print(jax.config.jax_compilation_cache_dir)"
+    env = dict(os.environ, LYAPBENCH_JAX_CACHE="off")
+    out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True, timeout=300)
+    assert out.returncode == 0 and out.stdout.strip() == "None", out.stderr[-2000:]
+
+
+@pytest.mark.slow
+def test_persistent_jax_cache_gives_the_same_figures(tmp_path):
+    cache = tmp_path / "jax"
+    d1, cold, _ = _fit_mlp(cache)
+    assert d1 == str(cache) and any(cache.iterdir())  # entries written by the first process
+    d2, warm, _ = _fit_mlp(cache)
+    _, off, _ = _fit_mlp("off")
+    assert cold == warm == off  # a cached executable computes bitwise what a fresh compile does
