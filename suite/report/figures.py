@@ -161,11 +161,11 @@ def critical_difference(test, title: str):
     k = len(test.learners)
     order = np.argsort(test.average_ranks)
     ranks = np.asarray(test.average_ranks, float)
-    height = 2.0 + 0.28 * k
+    height = 2.2 + 0.22 * k
     fig, ax = new_figure(7.0, height)
     ax.grid(False)
     ax.set_xlim(0.5, k + 0.5)
-    ax.set_ylim(-(k // 2 + 2.5), 1.6)
+    ax.set_ylim(-0.8 * max((k + 1) // 2, k - (k + 1) // 2) - 0.5, 1.6)
     ax.yaxis.set_visible(False)
     for s in ("left", "right", "bottom"):
         ax.spines[s].set_visible(False)
