@@ -182,3 +182,39 @@ def test_persistent_jax_cache_gives_the_same_figures(tmp_path):
     d2, warm, _ = _fit_mlp(cache)
     _, off, _ = _fit_mlp("off")
     assert cold == warm == off  # a cached executable computes bitwise what a fresh compile does
+
+
+@pytest.mark.slow
+def test_real_cells_give_the_same_accuracy_with_and_without_reuse(tmp_path):
+    from suite.export import tidy_table
+    from suite.runner import run_grid
+
+    grid = tmp_path / "g.toml"
+    grid.write_text("""
+[grid]
+systems = ["lorenz63"]
+tasks = ["forecast"]
+learners = ["persistence", "dmd"]
+seeds = [0, 1]
+[budget]
+seconds_per_cell = 300
+[task.forecast]
+train_lyapunov_times = 2.0
+n_starts = 2
+history_steps = 10
+horizon_lyapunov_times = 1.0
+curve_points = 5
+""")
+
+    def accuracy(store):
+        df = tidy_table(store)
+        df = df[df["kind"] == "accuracy"]
+        return df.sort_values(["cell", "metric", "horizon"]).reset_index(drop=True)[
+            ["cell", "status", "metric", "horizon", "value"]]
+
+    reuse, fresh = tmp_path / "reuse.sqlite", tmp_path / "fresh.sqlite"
+    run_grid(grid, reuse, workers=1, progress=False)
+    run_grid(grid, fresh, workers=1, cells_per_worker=1, progress=False)
+    a, b = accuracy(reuse), accuracy(fresh)
+    assert len(a) and set(a["status"]) == {"ok"}
+    assert a.equals(b)  # bitwise: reuse keeps compiled functions, never figures
