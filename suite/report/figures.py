@@ -62,7 +62,7 @@ def error_vs_horizon(curves: pd.DataFrame, system: str, *, threshold: float = 0.
     ax.set_xlabel("forecast horizon (Lyapunov times)")
     ax.set_ylabel("normalised RMSE (attractor std)")
     ax.set_title(f"{system}: forecast error against horizon" + (f"\n{subtitle}" if subtitle else ""))
-    _legend(ax, len(learners))
+    _legend(ax, len(ax.get_legend_handles_labels()[0]))
     return fig
 
 
@@ -111,7 +111,7 @@ def sweep_curve(points: pd.DataFrame, system: str, task: str, metric: str, axis:
     what = "sparsity" if axis == "fraction" else "noise"
     ax.set_title(f"{system} · {task}: {what} curve\n" + (f"{subtitle}; " if subtitle else "")
                  + "median over seeds, band min–max")
-    _legend(ax, len(learners))
+    _legend(ax, len(ax.get_legend_handles_labels()[0]))
     return fig
 
 

@@ -119,7 +119,6 @@ def write_report(store_path, out_dir, *, queries: int = 100, ladder: bool | pd.D
     tables = build_tables(cells, speed, queries=queries)
     tests = rank_tests(cells) if not cells.empty else {}
 
-    out.parent.mkdir(parents=True, exist_ok=True) if not out.exists() else None
     tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.", dir=out.parent if not out.exists() else out))
     made: dict = {}
     figs_kept: dict = {}
@@ -170,17 +169,13 @@ def _figures(cells, tidy, lad, tests, tmp, made, kept, keep) -> list[str]:
     def save(fig, stem, why):
         if keep:
             kept[stem] = fig
-        _save(fig, tmp, stem, made)
-        if keep:  # _save closed it; the object stays usable for inspection
-            pass
+        _save(fig, tmp, stem, made)  # closes it; a kept Figure object stays usable for inspection
         lines.append(f"- `{stem}.png` / `.svg` — {why}")
 
     if cells.empty:
         return ["No figures: the store holds no cells."]
     ok = cells[cells["status"] == "ok"]
-    learners = sorted(cells["learner"].unique())
-    order = {name: learners for name in ()}  # stable colours: the global learner order
-    del order
+    learners = sorted(cells["learner"].unique())  # the global order: a learner keeps its colour in every figure
 
     # error against horizon, per forecast problem, at the densest clean setting
     fc = ok[ok["task"] == "forecast"]
@@ -256,14 +251,16 @@ def _figures(cells, tidy, lad, tests, tmp, made, kept, keep) -> list[str]:
         fig = F.critical_difference(test, f"Learners ranked over {name}: {test.n_blocks} blocks "
                                     "(system × setting" + (" × task)" if name == "all tasks" else ")"))
         save(fig, f"critical_difference_{_slug(name)}", f"critical-difference diagram, {name}")
-    plt.close("all") if not keep else None
+    if not keep:
+        plt.close("all")
     return lines
 
 
 def _ordered(names, global_order) -> list[str]:
+    """Every learner of the store in one order (absent ones are skipped when drawn, keeping each
+    learner's colour the same in every figure), then labels that are not plain learner names."""
     present = list(dict.fromkeys(names))
-    base = [n for n in global_order if n in present]
-    return base + sorted(n for n in present if n not in base)
+    return list(global_order) + sorted(n for n in present if n not in global_order)
 
 
 # ------------------------------------------------------------------ summary
@@ -327,7 +324,8 @@ def _summary(store_path, now, version, cells, tables, tests, lad, speed, notes_l
     tex.append(r"\section*{Are the differences real?}")
     tex.append(r"\begin{itemize}")
     tex += [r"\item " + _tx(f"{name}: {test.summary()}") for name, test in tests.items()]
-    tex.append(r"\item " + _tx("(no rank test)")) if not tests else None
+    if not tests:
+        tex.append(r"\item " + _tx("(no rank test)"))
     tex.append(r"\end{itemize}")
     md += ["## Figures", ""] + fig_lines + [""]
     tex += [r"\section*{Figures}", r"\begin{itemize}"]

@@ -19,7 +19,6 @@ Equations I*, 2nd ed., Springer (1993), section II.10 (work–precision diagrams
 from __future__ import annotations
 
 import json
-import math
 
 import numpy as np
 import pandas as pd
