@@ -191,7 +191,12 @@ class Store:
         if not exists and not create:
             raise FileNotFoundError(f"store {str(path)!r} does not exist")
         if exists:
-            cls._check_header(path)
+            try:
+                cls._check_header(path)
+            except StoreError:
+                if lock:  # another run may be creating it right now: say so, not "not a store"
+                    cls._raise_if_locked(path)
+                raise
         elif not readonly:
             try:
                 path.parent.mkdir(parents=True, exist_ok=True)
@@ -236,6 +241,24 @@ class Store:
             raise StoreError(f"store {str(path)!r} cannot be read ({exc.strerror})") from None
         if head != b"SQLite format 3\x00":
             raise StoreError(f"{str(path)!r} is not a lyapbench store (not an SQLite file)")
+
+    @staticmethod
+    def _raise_if_locked(path: Path) -> None:
+        """Raise :class:`StoreLockedError` if a run holds ``path``'s lock (creates nothing)."""
+        try:
+            fd = os.open(path.with_name(path.name + ".lock"), os.O_RDONLY)
+        except OSError:
+            return
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            holder = os.read(fd, 64).decode(errors="replace").strip()
+            who = f" (pid {holder})" if holder else ""
+            raise StoreLockedError(
+                f"store {str(path)!r} is in use by another lyapbench run{who}; "
+                "wait for it to finish or use another --store") from None
+        finally:
+            os.close(fd)
 
     @staticmethod
     def _take_lock(path: Path) -> int:

@@ -198,3 +198,18 @@ def test_lyapbench_run_killed_at_five_seeded_moments_then_resumed(tmp_path):
         assert sorted(c["seed"] for c in got) == list(range(n))
         assert {c["status"] for c in got} == {"ok"}
         assert len(st.metrics()) == 3 * n
+
+
+def test_a_store_being_created_by_another_run_is_reported_in_use(tmp_path, capsys):
+    """The race the real-process test above can hit: the holder has the lock, its file is not SQLite yet."""
+    grid = _grid(tmp_path, "harness.bad_learners:PolynomialInTime", [0])
+    store = tmp_path / "s.sqlite"
+    fd = Store._take_lock(store)  # what a starting run holds ...
+    try:
+        store.write_bytes(b"")  # ... before SQLite has written the file's header
+        assert main(["run", str(grid), "--store", str(store), "--quiet"]) == 2
+        err = capsys.readouterr().err
+        assert "in use by another lyapbench run" in err and f"pid {os.getpid()}" in err, err
+        assert store.read_bytes() == b""
+    finally:
+        os.close(fd)
