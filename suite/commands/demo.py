@@ -9,6 +9,8 @@ findings are printed, computed from the table.
 
 from __future__ import annotations
 
+import argparse
+
 import os
 import resource
 import sys
@@ -40,9 +42,9 @@ def _positive_int(text: str) -> int:
     try:
         v = int(text)
     except ValueError:
-        raise UsageError(f"expected a positive integer, got {text!r}") from None
+        raise argparse.ArgumentTypeError(f"expected a positive integer, got {text!r}") from None
     if v < 1:
-        raise UsageError(f"expected a positive integer, got {text!r}")
+        raise argparse.ArgumentTypeError(f"expected a positive integer, got {text!r}")
     return v
 
 

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import argparse
+
 import math
 import sys
 
@@ -12,9 +14,9 @@ def _positive_int(text: str) -> int:
     try:
         v = int(text)
     except ValueError:
-        raise UsageError(f"expected a positive integer, got {text!r}") from None
+        raise argparse.ArgumentTypeError(f"expected a positive integer, got {text!r}") from None
     if v < 1:
-        raise UsageError(f"expected a positive integer, got {text!r}")
+        raise argparse.ArgumentTypeError(f"expected a positive integer, got {text!r}")
     return v
 
 
@@ -22,9 +24,9 @@ def _non_negative_int(text: str) -> int:
     try:
         v = int(text)
     except ValueError:
-        raise UsageError(f"expected an integer >= 0, got {text!r}") from None
+        raise argparse.ArgumentTypeError(f"expected an integer >= 0, got {text!r}") from None
     if v < 0:
-        raise UsageError(f"expected an integer >= 0, got {text!r}")
+        raise argparse.ArgumentTypeError(f"expected an integer >= 0, got {text!r}")
     return v
 
 
@@ -32,9 +34,9 @@ def _tolerance(text: str) -> float:
     try:
         v = float(text)
     except ValueError:
-        raise UsageError(f"expected a number >= 0, got {text!r}") from None
+        raise argparse.ArgumentTypeError(f"expected a number >= 0, got {text!r}") from None
     if not math.isfinite(v) or v < 0:
-        raise UsageError(f"expected a finite number >= 0, got {text!r}")
+        raise argparse.ArgumentTypeError(f"expected a finite number >= 0, got {text!r}")
     return v
 
 
