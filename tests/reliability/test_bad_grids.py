@@ -136,10 +136,13 @@ def _names_the_key(msg: str, path) -> bool:
     return any(d in msg for d in dotted + quoted + related) or any(p in msg for p in path)
 
 
-@settings(max_examples=300, deadline=None, derandomize=True, database=None,
-          suppress_health_check=[HealthCheck.too_slow])
-@given(st.lists(MUTATIONS, min_size=1, max_size=3))
-def test_mutated_grids_are_valid_or_one_line_naming_the_key(mutations):
+def _mutated(n):
+    return settings(max_examples=n, deadline=None, derandomize=True, database=None,
+                    suppress_health_check=[HealthCheck.too_slow])(
+        given(st.lists(MUTATIONS, min_size=1, max_size=3))(_check_mutated))
+
+
+def _check_mutated(mutations):
     doc, paths = VALID, []
     for m in mutations:
         doc, p = _apply(doc, m)
@@ -159,7 +162,11 @@ def test_mutated_grids_are_valid_or_one_line_naming_the_key(mutations):
     assert grid.n_cells == len(grid.cells()) >= 1
 
 
-@settings(max_examples=150, deadline=None, derandomize=True, database=None)
+test_mutated_grids_are_valid_or_one_line_naming_the_key = _mutated(120)
+test_mutated_grids_many_more_examples = pytest.mark.slow(_mutated(1500))
+
+
+@settings(max_examples=100, deadline=None, derandomize=True, database=None)
 @given(st.data())
 def test_textual_damage_is_one_line(data):
     """Duplicate, truncate, or splice lines of the valid text (duplicate keys, broken tables)."""
