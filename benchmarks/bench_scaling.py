@@ -111,7 +111,7 @@ def fit_scaling(sizes, cap, table):
 def main(quick: bool, full: bool) -> None:
     info = machine()
     table = []
-    grid_sizes = [10, 100] + ([1000] if full else [])
+    grid_sizes = [5, 20] if quick else [10, 100] + ([1000] if full else [])
     fit_sizes = [100, 1000] if quick else [100, 1000, 10_000, 100_000]
     cap = 10.0 if quick else 30.0
     with tempfile.TemporaryDirectory() as tmp:
