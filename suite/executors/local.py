@@ -37,6 +37,16 @@ Worker reuse (``cells_per_worker``)
     worker ran a cell before) are those of the cell; train and inference
     times of a reused worker exclude compilations that an earlier cell of
     the same shape already paid for.
+
+    Measured on the loaded shared 2-core machine (load average 9-13): 20
+    ``persistence`` forecast cells on Lorenz-63 (tiny task options), 2
+    workers: a fresh worker per cell took 569 s of wall time and 129 s of
+    worker CPU; reused workers took 147 s and 44 s (65 s and 33 s with the
+    JAX compilation cache warm, see :mod:`solvers._config`); the cells'
+    own work (building the data) is ~1.3 s of CPU each. The harness's
+    own cost per cell on a reused worker (a cell that returns at once, 200
+    cells on one worker): ~1.4 ms of worker CPU. Accuracy figures were
+    bitwise equal in all three runs.
 """
 
 from __future__ import annotations
