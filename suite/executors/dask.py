@@ -14,8 +14,11 @@ paid once per Dask worker, not per cell; ``cells_per_worker`` bounds the
 reuse as for the local executor (0: no limit, 1: a fresh subprocess per
 cell). A cell that times out, dies or fails for memory takes the subprocess
 down and the next task starts a fresh one. The subprocess exits when its
-Dask worker does (its stdin closes). Measured figures: see the report in
-``tests/harness/test_executors.py``'s module docstring.
+Dask worker does (its stdin closes); on an existing cluster it stays
+idle (~220 MB resident) between runs. Measured on the loaded shared 2-core
+machine: 20 trivial ``persistence`` cells on a 2-worker LocalCluster took
+108 s including the cluster's start, with 2 worker subprocesses for the 20
+cells (one per Dask worker) instead of 20.
 
 A scheduler address that cannot be reached is an error (exit 2) raised
 before the store is opened (:meth:`DaskExecutor.check`).
