@@ -219,12 +219,17 @@ def test_cli_refuses_with_one_line_and_leaves_the_store_byte_identical(tmp_path,
     assert after == before
 
 
-def test_duplicate_key_through_the_installed_entry_point(tmp_path):
+@pytest.mark.parametrize("process", ["in-process", pytest.param("entry-point", marks=pytest.mark.slow)])
+def test_duplicate_key_is_one_line_quoting_it(tmp_path, capsys, process):
     grid = tmp_path / "dup.toml"
     grid.write_text(dumps(VALID).replace('seeds = [0, 1]', 'seeds = [0, 1]\nseeds = [2]'))
     store = tmp_path / "s.sqlite"
-    exe = Path(sys.executable).with_name("lyapbench")
-    r = subprocess.run([str(exe), "run", str(grid), "--store", str(store)], capture_output=True, text=True,
-                       timeout=300, cwd=tmp_path)
-    assert r.returncode == 2 and r.stderr.count("\n") == 1 and "Traceback" not in r.stderr, r.stderr
-    assert "seeds" in r.stderr and not store.exists()
+    argv = ["run", str(grid), "--store", str(store)]
+    if process == "in-process":
+        code, err = main(argv), capsys.readouterr().err
+    else:
+        exe = Path(sys.executable).with_name("lyapbench")
+        r = subprocess.run([str(exe), *argv], capture_output=True, text=True, timeout=300, cwd=tmp_path)
+        code, err = r.returncode, r.stderr
+    assert code == 2 and err.count("\n") == 1 and "Traceback" not in err, err
+    assert "seeds = [2]" in err and not store.exists()
