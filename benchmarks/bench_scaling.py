@@ -76,12 +76,12 @@ def grid_scaling(sizes, table, tmp):
 
 def fit_scaling(sizes, cap, table):
     from surrogates import Budget, NotApplicableError, TrainingData
-    from surrogates.registry import learner_names, make_learner
+    from surrogates.registry import available_learners, make_learner
 
     t, y, system = lorenz_samples(max(sizes))
     scale = y.std(axis=0)
     exps = {}
-    for name in learner_names():
+    for name in available_learners():
         xs, ts = [], []
         for n in sizes:
             data = TrainingData.from_arrays(t[:n], y[:n], state_names=system.state_names, scale=scale)
