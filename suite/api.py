@@ -32,7 +32,7 @@ def grid_cells(grid_path) -> pd.DataFrame:
 
 
 def run(grid_path, store=None, *, executor: str = "local", workers: int | None = None,
-        scheduler: str | None = None, retries: int = 1, cells_per_worker: int = 1,
+        scheduler: str | None = None, retries: int = 1, cells_per_worker: int = 0,
         function=DEFAULT_CELL_FUNCTION, grace: float | None = None, progress=False) -> pd.DataFrame:
     """Run the missing cells of a grid into ``store`` and return the store's tidy table.
 

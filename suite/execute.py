@@ -31,7 +31,8 @@ Cost (``CellOutcome.cost``)
     this process), ``inference_seconds`` and
     ``inference_seconds_per_lyapunov_time`` (per time unit of simulated time,
     summed over rollouts), ``n_parameters``, ``peak_memory_mb`` (``ru_maxrss``
-    of this process: the runner runs each cell in its own process),
+    of this process; the runner's worker replaces it by the cell's own peak,
+    reset before each cell, see :mod:`suite.executors.local`),
     ``data_seconds`` and ``total_seconds``.
 
 Determinism

@@ -362,7 +362,7 @@ def verify_table(source, *, store=None, rtol: float = DEFAULT_RTOL, atol: float 
                  sample: int | None = None, seed: int = 0, executor: str = "local",
                  workers: int | None = None, scheduler: str | None = None,
                  budget_seconds: float | None = None, budget_iterations: int | None = None,
-                 cells_per_worker: int = 1, progress=False) -> VerifyResult:
+                 cells_per_worker: int = 0, progress=False) -> VerifyResult:
     """Re-run the cells of a published table and compare their accuracy figures.
 
     Parameters

@@ -143,8 +143,14 @@ class DaskExecutor:
                 return Client(self.scheduler, timeout="20s"), None
             except (OSError, TimeoutError, ValueError) as exc:
                 raise ValueError(f"cannot reach the Dask scheduler at {self.scheduler!r} ({exc})") from None
-        cluster = LocalCluster(n_workers=self.workers, threads_per_worker=1, processes=True,
-                               dashboard_address=None, host="127.0.0.1")
+        import dask
+
+        # A Dask worker that dies mid-cell is retried by the scheduler, not by us: cap
+        # its retries at ours so "retried once, then failed" holds here too. (An
+        # existing cluster given by --scheduler keeps its own policy.)
+        with dask.config.set({"distributed.scheduler.allowed-failures": int(self.retries)}):
+            cluster = LocalCluster(n_workers=self.workers, threads_per_worker=1, processes=True,
+                                   dashboard_address=None, host="127.0.0.1")
         return Client(cluster), cluster
 
     def run(self, tasks, on_result) -> None:
