@@ -84,7 +84,7 @@ def run(grid, executor: str, workers: int, tmp: str) -> tuple[float, object]:
     return wall, summary
 
 
-def main(quick: bool, cells: int | None, heavy_cells: int | None, configs) -> None:
+def main(quick: bool, cells: int | None, heavy_cells: int | None, configs, out: str = "harness") -> None:
     n_trivial = cells or (20 if quick else 200)
     n_heavy = 4 if quick else 20
     n_heavy = n_heavy if heavy_cells is None else heavy_cells
@@ -138,7 +138,7 @@ def main(quick: bool, cells: int | None, heavy_cells: int | None, configs) -> No
              "other jobs' load; local executor only, Dask's workers are not reaped by this process). "
              f"Dask 2 vs 1 worker: {speed:.2f}x. With the load average above the core count, a "
              "second worker gets only part of a second core.")
-    write_results("harness", {"machine": info, "targets": targets}, table, notes, quick)
+    write_results(out, {"machine": info, "targets": targets}, table, notes, quick)
 
 
 if __name__ == "__main__":
@@ -148,5 +148,6 @@ if __name__ == "__main__":
     ap.add_argument("--heavy-cells", type=int, help="number of non-trivial cells for the Dask speed-up (0: skip)")
     ap.add_argument("--configs", nargs="+", default=["local:1", "local:2", "dask:1", "dask:2"],
                     help="executor:workers pairs to time on the trivial grid")
+    ap.add_argument("--out", default="harness", help="result name: results/perf/<out>.json (default harness)")
     a = ap.parse_args()
-    main(a.quick, a.cells, a.heavy_cells, [(c.split(":")[0], int(c.split(":")[1])) for c in a.configs])
+    main(a.quick, a.cells, a.heavy_cells, [(c.split(":")[0], int(c.split(":")[1])) for c in a.configs], a.out)
