@@ -84,6 +84,7 @@ from . import metrics as M
 from .cell import MetricRow
 from .datasets import (DataStreams, ReferenceUnavailableError, reference_with_horizon, trajectory_dataset,
                        trusted_trajectory, window_dataset)
+from .systems.reference import initial_conditions
 
 __all__ = [
     "HEADLINE_METRICS",
@@ -267,7 +268,7 @@ def _clip_history(m: int) -> int:
 # ------------------------------------------------------------------ tasks
 def _window(ctx: TaskContext):
     system = ctx.system
-    y0 = system.initial_conditions(1, ctx.streams.starts)[0]
+    y0 = initial_conditions(system, 1, ctx.streams.starts)[0]
     window = ctx.options["window_lyapunov_times"] * ctx.time_unit
     return window_dataset(system, y0, window, fraction=ctx.fraction, noise=ctx.noise, scale=ctx.scale,
                           regular=ctx.regular, min_samples=ctx.min_samples, streams=ctx.streams)
@@ -316,7 +317,7 @@ def _setup_identify(ctx: TaskContext, unknown: tuple[str, ...]) -> TaskSetup:
 
 def _training(ctx: TaskContext):
     system = ctx.system
-    y0 = system.initial_conditions(1, ctx.streams.starts)[0]
+    y0 = initial_conditions(system, 1, ctx.streams.starts)[0]
     duration = ctx.options["train_lyapunov_times"] * ctx.time_unit
     data, info = trajectory_dataset(system, y0, duration, fraction=ctx.fraction, noise=ctx.noise,
                                     scale=ctx.scale, regular=ctx.regular, min_samples=ctx.min_samples,
@@ -353,7 +354,7 @@ def forecast_problem(ctx: TaskContext, dt: float | None = None, n_starts: int | 
     m = _clip_history(o["history_steps"])
     hist_time = (m - 1) * dt
     horizon = o["horizon_lyapunov_times"] * tu
-    starts = system.initial_conditions(int(o["n_starts"]), ctx.streams.tests)
+    starts = initial_conditions(system, int(o["n_starts"]), ctx.streams.tests)
     if n_starts is not None:
         starts = starts[:max(1, int(n_starts))]
     histories, truths, avail = [], [], []
@@ -418,7 +419,7 @@ def _setup_climate(ctx: TaskContext) -> TaskSetup:
     m = _clip_history(o["history_steps"])
     hist_time = (m - 1) * dt
     length = o["climate_lyapunov_times"] * tu
-    start = system.initial_conditions(1, ctx.streams.climate)[0]
+    start = initial_conditions(system, 1, ctx.streams.climate)[0]
     ref = trusted_trajectory(system, start, hist_time + length, dt)
     history = ref.y[:m]
     truth = ref.y[m - 1:]
