@@ -135,7 +135,9 @@ systems = ["lorenz63"]
 tasks = ["reconstruct"]
 learners = ["{M}:PolynomialInTime"]
 seeds = [0, 1, 2, 3]
-""")
+[learner."{M}:PolynomialInTime"]
+pause = 1.5
+""")  # each cell sleeps 1.5 s, so the kill lands after the first cell and before the last
     store = tmp_path / "s.sqlite"
     env = dict(os.environ, PYTHONPATH=os.pathsep.join([str(REPO), str(REPO / "tests")]))
     cmd = [_lyapbench(), "run", str(grid), "--store", str(store), "--workers", "1", "--quiet",
