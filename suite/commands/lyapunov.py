@@ -11,7 +11,7 @@ def register(sub) -> None:
                                    "re-orthonormalisation (Benettin et al. 1980), and the Kaplan–Yorke dimension.")
     p.add_argument("system", help="system name (see `lyapbench systems`)")
     p.add_argument("--param", action="append", metavar="NAME=VALUE", help="parameter override (repeatable)")
-    p.add_argument("--t-end", type=positive_float, default=None, help="averaging time (default per system)")
+    p.add_argument("--t-end", type=positive_float, default=None, help="averaging time after the transient (default per system)")
     p.add_argument("--json", action="store_true", help="print a JSON summary")
     p.set_defaults(func=run)
 
@@ -38,6 +38,9 @@ def run(args) -> int:
         ex = ", ".join(f"{x:.4f}" for x in res.exponents)
         print(f"{system.name}: exponents ({ex}); Kaplan–Yorke dimension {res.kaplan_yorke_dimension:.4f}; "
               f"{res.seconds:.2f} s")
+        if not system.chaotic:
+            print(f"  note: {system.name} is not chaotic at its default parameters; finite-time exponents "
+                  "of a regular orbit decay towards zero only slowly (like 1/t)")
         for pv in out["published"]:
             print(f"  published {pv['quantity']}: {pv['value']} ({pv['source']})")
     return 0
