@@ -71,7 +71,7 @@ def kaplan_yorke_dimension(exponents) -> float:
     ----------
     J. L. Kaplan & J. A. Yorke, "Chaotic behavior of multidimensional
     difference equations", in *Functional Differential Equations and
-    Approximation of Fixed Points*, Lecture Notes in Math. 730, 204–227 (1979).
+    Approximation of Fixed Points*, Lect. Notes Math. 730, 204–227 (1979).
     """
     lam = np.sort(np.asarray(exponents, dtype=float).ravel())[::-1]
     if lam.size == 0 or lam[0] < 0:

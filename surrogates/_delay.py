@@ -5,8 +5,8 @@ recent first: ``[y_k, y_{k-1}, ..., y_{k-q+1}]`` (length ``q * d``).
 
 References
 ----------
-F. Takens, "Detecting strange attractors in turbulence", Lecture Notes in
-Mathematics 898, 366-381 (1981).
+F. Takens, "Detecting strange attractors in turbulence", Lect. Notes
+Math. 898, 366-381 (1981).
 """
 
 from __future__ import annotations
