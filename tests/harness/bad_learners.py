@@ -38,13 +38,10 @@ class PolynomialInTime(Learner):
     capabilities = _RECONSTRUCT
     reference = "Gauss (1809), least squares"
 
-    def __init__(self, degree=8, pause=0.0):
+    def __init__(self, degree=8):
         self.degree = degree
-        self.pause = pause  # seconds to sleep in fit: lets process-kill tests land mid-study
 
     def _fit(self, data, physics, budget, seed):
-        if self.pause:
-            time.sleep(float(self.pause))
         tr = data.trajectories[0]
         self.t0_, self.span_ = tr.t[0], max(tr.t[-1] - tr.t[0], 1e-12)
         x = (tr.t - self.t0_) / self.span_
@@ -56,6 +53,18 @@ class PolynomialInTime(Learner):
 
     def _n_parameters(self):
         return int(self.coef_.size)
+
+
+class PausingPolynomial(PolynomialInTime):
+    """PolynomialInTime that sleeps ``pause`` seconds in fit, so a process kill lands mid-study."""
+
+    def __init__(self, degree=8, pause=1.5):
+        self.degree = degree
+        self.pause = pause
+
+    def _fit(self, data, physics, budget, seed):
+        time.sleep(float(self.pause))
+        super()._fit(data, physics, budget, seed)
 
 
 class RaisingLearner(PolynomialInTime):

@@ -133,10 +133,8 @@ def test_resume_after_sigkill_has_every_cell_exactly_once(tmp_path):
 [grid]
 systems = ["lorenz63"]
 tasks = ["reconstruct"]
-learners = ["{M}:PolynomialInTime"]
+learners = ["{M}:PausingPolynomial"]
 seeds = [0, 1, 2, 3]
-[learner."{M}:PolynomialInTime"]
-pause = 1.5
 """)  # each cell sleeps 1.5 s, so the kill lands after the first cell and before the last
     store = tmp_path / "s.sqlite"
     env = dict(os.environ, PYTHONPATH=os.pathsep.join([str(REPO), str(REPO / "tests")]))
