@@ -132,6 +132,23 @@ seeds = {list(seeds)}
     return p
 
 
+def _store_ready(store) -> bool:
+    """The store file exists and its schema is committed (readable from another connection)."""
+    import sqlite3
+
+    if not store.exists() or store.stat().st_size == 0:
+        return False
+    try:
+        con = sqlite3.connect(f"file:{store}?mode=ro", uri=True)
+        try:
+            con.execute("SELECT COUNT(*) FROM cells").fetchone()
+            return True
+        finally:
+            con.close()
+    except sqlite3.Error:
+        return False
+
+
 def test_second_run_on_a_busy_store_is_refused_and_changes_nothing(tmp_path, capsys):
     H = "harness.bad_learners"
     grid = _grid(tmp_path, f"{H}:SleepingLearner", [0, 1], "[budget]\nseconds_per_cell = 600\n")
@@ -143,10 +160,11 @@ def test_second_run_on_a_busy_store_is_refused_and_changes_nothing(tmp_path, cap
     try:
         deadline = time.monotonic() + 240
         while time.monotonic() < deadline and first.poll() is None:
-            if lock.exists() and lock.read_text().strip() == str(first.pid):
-                break
+            if lock.exists() and lock.read_text().strip() == str(first.pid) and _store_ready(store):
+                break  # the first run holds the lock and has finished creating the store
             time.sleep(0.2)
         assert first.poll() is None, first.communicate()
+        time.sleep(0.5)  # its first cell is asleep now: nothing writes until it ends
         before = store.read_bytes()
         code = main(["run", str(grid), "--store", str(store), "--quiet", "--workers", "1",
                      "--cell-function", f"{H}:standin_run_cell"])
