@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import argparse
 import json
 import math
 import os
@@ -11,7 +12,8 @@ from pathlib import Path
 
 from suite.cli import UsageError
 
-__all__ = ["print_json", "atomic_output", "parse_assignments", "check_output_path", "positive_float"]
+__all__ = ["print_json", "atomic_output", "parse_assignments", "check_output_path", "positive_float", "positive_int",
+           "non_negative_int"]
 
 
 def _clean(obj):
@@ -40,6 +42,26 @@ def positive_float(text: str) -> float:
     if not math.isfinite(v) or v <= 0:
         raise UsageError(f"expected a positive number, got {text!r}")
     return v
+
+
+def _int_at_least(text: str, low: int, what: str) -> int:
+    try:
+        v = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected {what}, got {text!r}") from None
+    if v < low:
+        raise argparse.ArgumentTypeError(f"expected {what}, got {text!r}")
+    return v
+
+
+def positive_int(text: str) -> int:
+    """argparse type: an integer >= 1 (argparse names the option in its one-line error)."""
+    return _int_at_least(text, 1, "a positive integer")
+
+
+def non_negative_int(text: str) -> int:
+    """argparse type: an integer >= 0."""
+    return _int_at_least(text, 0, "an integer >= 0")
 
 
 def parse_assignments(items, what="--param") -> dict[str, float]:

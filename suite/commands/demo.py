@@ -9,8 +9,6 @@ findings are printed, computed from the table.
 
 from __future__ import annotations
 
-import argparse
-
 import os
 import resource
 import sys
@@ -18,6 +16,7 @@ import time
 from pathlib import Path
 
 from suite.cli import UsageError
+from suite.commands._common import positive_int
 
 __all__ = ["register", "run", "demo_grid_path", "findings", "SCENARIO"]
 
@@ -38,15 +37,6 @@ def demo_grid_path() -> Path:
     return Path(__file__).resolve().parent.parent / "grids" / "demo.toml"
 
 
-def _positive_int(text: str) -> int:
-    try:
-        v = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a positive integer, got {text!r}") from None
-    if v < 1:
-        raise argparse.ArgumentTypeError(f"expected a positive integer, got {text!r}")
-    return v
-
 
 def register(sub) -> None:
     p = sub.add_parser(
@@ -58,7 +48,7 @@ def register(sub) -> None:
                     "The store <out>/demo.sqlite is resumed when the demo runs again.")
     p.add_argument("--out", default="results/demo", metavar="DIR",
                    help="output folder for the store, table and report (default results/demo)")
-    p.add_argument("--workers", type=_positive_int, default=None,
+    p.add_argument("--workers", type=positive_int, default=None,
                    help="parallel workers (default: the number of CPUs, at most 2)")
     p.add_argument("--no-report", action="store_true",
                    help="skip the report (write only the table and the findings)")

@@ -3,16 +3,8 @@
 from __future__ import annotations
 
 from suite.cli import UsageError
+from suite.commands._common import positive_int
 
-
-def _positive_int(text: str) -> int:
-    try:
-        v = int(text)
-    except ValueError:
-        raise UsageError(f"expected a positive integer, got {text!r}") from None
-    if v < 1:
-        raise UsageError(f"expected a positive integer, got {text!r}")
-    return v
 
 
 def register(sub) -> None:
@@ -26,9 +18,9 @@ def register(sub) -> None:
                     "manifest.json. Files are replaced atomically.")
     p.add_argument("store", metavar="STORE", help="SQLite store written by `lyapbench run`")
     p.add_argument("--out", required=True, metavar="DIR", help="output folder (created if absent)")
-    p.add_argument("--queries", type=_positive_int, default=100, metavar="N",
+    p.add_argument("--queries", type=positive_int, default=100, metavar="N",
                    help="rollouts over which training time is shared in the speed-up column (default 100)")
-    p.add_argument("--ladder-starts", type=_positive_int, default=3, metavar="K",
+    p.add_argument("--ladder-starts", type=positive_int, default=3, metavar="K",
                    help="start states each solver is run from (default 3)")
     p.add_argument("--no-solvers", action="store_true", help="skip the solver ladder (no speed-up column)")
     p.set_defaults(func=run)

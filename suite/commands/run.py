@@ -6,26 +6,9 @@ import sys
 from pathlib import Path
 
 from suite.cli import UsageError
+from suite.commands._common import non_negative_int, positive_int
 
 
-def _positive_int(text: str) -> int:
-    try:
-        v = int(text)
-    except ValueError:
-        raise UsageError(f"expected a positive integer, got {text!r}") from None
-    if v < 1:
-        raise UsageError(f"expected a positive integer, got {text!r}")
-    return v
-
-
-def _count(text: str) -> int:
-    try:
-        v = int(text)
-    except ValueError:
-        raise UsageError(f"expected an integer >= 0, got {text!r}") from None
-    if v < 0:
-        raise UsageError(f"expected an integer >= 0, got {text!r}")
-    return v
 
 
 def register(sub) -> None:
@@ -40,15 +23,15 @@ def register(sub) -> None:
     p.add_argument("--store", default=None, help="SQLite store (default results/<grid name>.sqlite)")
     p.add_argument("--executor", choices=("local", "dask"), default="local",
                    help="local process pool (default) or a Dask cluster")
-    p.add_argument("--workers", type=_positive_int, default=None,
+    p.add_argument("--workers", type=positive_int, default=None,
                    help="parallel workers (default: the number of CPUs)")
     p.add_argument("--scheduler", default=None, metavar="ADDRESS",
                    help="address of an existing Dask scheduler (dask executor; default: start a local cluster)")
     p.add_argument("--resume", action="store_true",
                    help="require the store to exist already (resuming is what happens anyway when it does)")
-    p.add_argument("--retries", type=_count, default=1,
+    p.add_argument("--retries", type=non_negative_int, default=1,
                    help="extra attempts for a cell whose worker process died (default 1)")
-    p.add_argument("--cells-per-worker", type=_count, default=0,
+    p.add_argument("--cells-per-worker", type=non_negative_int, default=0,
                    help="cells a worker process runs before it is replaced (default 0: no limit; "
                         "1: every cell in a fresh process)")
     p.add_argument("--grace", type=float, default=None,

@@ -8,26 +8,9 @@ import math
 import sys
 
 from suite.cli import UsageError
+from suite.commands._common import non_negative_int, positive_int
 
 
-def _positive_int(text: str) -> int:
-    try:
-        v = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a positive integer, got {text!r}") from None
-    if v < 1:
-        raise argparse.ArgumentTypeError(f"expected a positive integer, got {text!r}")
-    return v
-
-
-def _non_negative_int(text: str) -> int:
-    try:
-        v = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected an integer >= 0, got {text!r}") from None
-    if v < 0:
-        raise argparse.ArgumentTypeError(f"expected an integer >= 0, got {text!r}")
-    return v
 
 
 def _tolerance(text: str) -> float:
@@ -62,18 +45,18 @@ def register(sub) -> None:
                    help=f"relative tolerance (default {DEFAULT_RTOL:g})")
     p.add_argument("--atol", type=_tolerance, default=DEFAULT_ATOL,
                    help=f"absolute tolerance (default {DEFAULT_ATOL:g})")
-    p.add_argument("--sample", type=_positive_int, default=None, metavar="K",
+    p.add_argument("--sample", type=positive_int, default=None, metavar="K",
                    help="verify a random sample of K cells (default all)")
-    p.add_argument("--seed", type=_non_negative_int, default=0, help="seed of the sample (default 0)")
+    p.add_argument("--seed", type=non_negative_int, default=0, help="seed of the sample (default 0)")
     p.add_argument("--executor", choices=("local", "dask"), default="local",
                    help="local process pool (default) or a Dask cluster")
-    p.add_argument("--workers", type=_positive_int, default=None,
+    p.add_argument("--workers", type=positive_int, default=None,
                    help="parallel workers (default: the number of CPUs)")
     p.add_argument("--scheduler", default=None, metavar="ADDRESS",
                    help="address of an existing Dask scheduler (dask executor only)")
     p.add_argument("--budget-seconds", type=_tolerance, default=None,
                    help="wall budget per cell where the table records none")
-    p.add_argument("--budget-iterations", type=_positive_int, default=None,
+    p.add_argument("--budget-iterations", type=positive_int, default=None,
                    help="iteration budget per cell where the table records none")
     p.add_argument("--quiet", action="store_true", help="no progress output")
     p.add_argument("--json", action="store_true", help="print the summary and the mismatches as JSON")
