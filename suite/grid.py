@@ -33,6 +33,13 @@ systems × tasks × learners × fractions × noise × physics × seeds. A learne
 that lacks a capability still gets its cells: running them records
 ``not_applicable``.
 
+A study that is not one product (a core table plus sparsity curves on a few
+systems, say) writes several ``[[grid]]`` blocks instead of one ``[grid]``
+table. Each block has the keys above and is its own product; the study is
+their union, in block order, a cell named by two blocks listed once. The
+``[budget]``, ``[learner.*]``, ``[system.*]`` and ``[task.*]`` tables are
+shared by every block, so such a cell has one key whichever block names it.
+
 Every problem raises :class:`GridError` (a ``ValueError``) whose message is
 one line naming the file, the key and the reason. :func:`load_grid` does all
 checks before returning, so a caller that opens a store only after it can
@@ -83,6 +90,11 @@ class Grid:
     iterations_per_cell, memory_mb_per_cell : int or None
     learner_params, system_params, task_options : dict
         name -> overrides, only for names present in the grid.
+    products : tuple
+        One ``(systems, tasks, learners, fractions, noise, physics, seeds)``
+        tuple per ``[[grid]]`` block; empty for a single ``[grid]`` table,
+        whose product is the attributes above (which, for several blocks,
+        are the union of the blocks' lists, for display).
     """
 
     name: str
@@ -101,27 +113,42 @@ class Grid:
     learner_params: dict = field(default_factory=dict)
     system_params: dict = field(default_factory=dict)
     task_options: dict = field(default_factory=dict)
+    products: tuple = ()
+
+    def _products(self) -> tuple:
+        return self.products or ((self.systems, self.tasks, self.learners, self.fractions,
+                                  self.noise, self.physics, self.seeds),)
 
     @property
     def n_cells(self) -> int:
-        return math.prod(len(v) for v in (self.systems, self.tasks, self.learners, self.fractions,
-                                           self.noise, self.physics, self.seeds))
+        """Number of distinct cells."""
+        if not self.products:
+            return math.prod(map(len, self._products()[0]))
+        return len(self.cells())
 
     def cells(self) -> list[CellSpec]:
-        """All cells, the full Cartesian product (see the module docstring for the order)."""
-        out = []
-        for system, task, learner, fraction, noise, physics, seed in itertools.product(
-                self.systems, self.tasks, self.learners, self.fractions, self.noise, self.physics,
-                self.seeds):
-            out.append(CellSpec(
+        """All distinct cells, product after product (see the module docstring for the order)."""
+        out, seen = [], set()
+        for product in self._products():
+            for spec in self._product_cells(product):
+                if len(self.products) > 1:
+                    k = spec.key()
+                    if k in seen:
+                        continue
+                    seen.add(k)
+                out.append(spec)
+        return out
+
+    def _product_cells(self, product):
+        for system, task, learner, fraction, noise, physics, seed in itertools.product(*product):
+            yield CellSpec(
                 system=system, task=task, learner=learner, fraction=float(fraction),
                 noise=float(noise), physics=physics, seed=int(seed),
                 system_params=dict(self.system_params.get(system, {})),
                 learner_params=dict(self.learner_params.get(learner, {})),
                 budget_seconds=float(self.seconds_per_cell),
                 budget_iterations=self.iterations_per_cell,
-                task_options=dict(self.task_options.get(task, {}))))
-        return out
+                task_options=dict(self.task_options.get(task, {})))
 
 
 # ---------------------------------------------------------------- validation helpers
@@ -216,8 +243,6 @@ def _same_kind(default, value) -> bool:
 def parse_grid(text: str, label: str = "<grid>", name: str = "grid") -> Grid:
     """Validate grid TOML ``text``; ``label`` names the file in error messages."""
     from suite.systems import available_systems, get_system
-    from surrogates.data import PHYSICS_LEVELS
-    from surrogates.registry import available_learners, learner_class
 
     c = _Checker(label)
     try:
@@ -231,59 +256,25 @@ def parse_grid(text: str, label: str = "<grid>", name: str = "grid") -> Grid:
         raise GridError(" ".join(f"{label}: not valid TOML ({exc}){where}".splitlines())) from None
     c.unknown_keys(doc, _TOP_KEYS, "")
     if "grid" not in doc:
-        c.fail("grid", "missing table [grid]")
-    g = c.table(doc["grid"], "grid")
-    c.unknown_keys(g, _GRID_KEYS, "grid")
-    for required in ("systems", "tasks", "learners"):
-        if required not in g:
-            c.fail(f"grid.{required}", "missing (the grid would be empty)")
+        c.fail("grid", "missing table [grid] (or [[grid]] blocks)")
+    raw = doc["grid"]
+    if isinstance(raw, list):
+        if not raw:
+            c.fail("grid", "no [[grid]] blocks")
+        blocks = [(c.table(b, f"grid[{i}]"), f"grid[{i}]") for i, b in enumerate(raw, 1)]
+    else:
+        blocks = [(c.table(raw, "grid"), "grid")]
 
     task_names, option_defaults = _task_registry()
     known_systems = available_systems()
-
-    def check_system(s):
-        if s not in known_systems:
-            c.fail("grid.systems", f"unknown system {s!r} (valid: {', '.join(known_systems)})")
-
-    def check_task(t):
-        if t not in task_names:
-            c.fail("grid.tasks", f"unknown task {t!r} (valid: {', '.join(task_names)})")
-
-    def check_fraction(f):
-        if not 0.0 < f <= 1.0:
-            c.fail("grid.fractions", f"fraction {f!r} is outside (0, 1]")
-
-    def check_noise(n):
-        if n < 0:
-            c.fail("grid.noise", f"noise level {n!r} is negative")
-
-    def check_physics(p):
-        if p not in PHYSICS_LEVELS:
-            c.fail("grid.physics", f"unknown physics level {p!r} (valid: {', '.join(PHYSICS_LEVELS)})")
-
-    def check_seed(s):
-        if s < 0 or s >= 2**63:
-            c.fail("grid.seeds", f"seed {s!r} must be in [0, 2**63)")
-
-    systems = c.list_of(g["systems"], "grid.systems", "str", check_system)
-    tasks = c.list_of(g["tasks"], "grid.tasks", "str", check_task)
-    learners = c.list_of(g["learners"], "grid.learners", "str")
     classes = {}
-    for ln in learners:
-        try:
-            classes[ln] = learner_class(ln)
-        except ValueError as exc:
-            msg = str(exc)
-            if ":" not in ln and "unknown learner" not in msg:
-                msg = f"{msg} (valid: {', '.join(available_learners())})"
-            c.fail("grid.learners", msg)
-    fractions = c.list_of(g.get("fractions", [1.0]), "grid.fractions", "number", check_fraction)
-    noise = c.list_of(g.get("noise", [0.0]), "grid.noise", "number", check_noise)
-    physics = c.list_of(g.get("physics", ["none"]), "grid.physics", "str", check_physics)
-    seeds = c.list_of(g.get("seeds", [0]), "grid.seeds", "int", check_seed)
-    n_cells = math.prod(map(len, (systems, tasks, learners, fractions, noise, physics, seeds)))
+    products = [_parse_product(c, g, where, known_systems, task_names, classes) for g, where in blocks]
+    n_cells = sum(math.prod(map(len, p)) for p in products)
     if n_cells > MAX_CELLS:
         c.fail("grid", f"{n_cells} cells in the product of its lists, more than the limit of {MAX_CELLS}")
+    in_grid = "grid." if len(blocks) == 1 else "any [[grid]] block's "
+    systems, tasks, learners, fractions, noise, physics, seeds = (
+        tuple(dict.fromkeys(v for p in products for v in p[i])) for i in range(7))
 
     # [budget]
     b = c.table(doc.get("budget", {}), "budget")
@@ -305,7 +296,7 @@ def parse_grid(text: str, label: str = "<grid>", name: str = "grid") -> Grid:
         key = f"learner.{ln}"
         params = c.table(params, key)
         if ln not in learners:
-            c.fail(key, f"learner {ln!r} is not in grid.learners")
+            c.fail(key, f"learner {ln!r} is not in {in_grid}learners")
         valid = classes[ln]._param_names()
         for p in params:
             if p not in valid:
@@ -319,7 +310,7 @@ def parse_grid(text: str, label: str = "<grid>", name: str = "grid") -> Grid:
         key = f"system.{sn}"
         params = c.table(params, key)
         if sn not in systems:
-            c.fail(key, f"system {sn!r} is not in grid.systems")
+            c.fail(key, f"system {sn!r} is not in {in_grid}systems")
         for p, v in params.items():
             if isinstance(v, bool) or not isinstance(v, (int, float)):
                 c.fail(f"{key}.{p}", f"must be a number, got {v!r}")
@@ -336,7 +327,7 @@ def parse_grid(text: str, label: str = "<grid>", name: str = "grid") -> Grid:
         key = f"task.{tn}"
         opts = c.table(opts, key)
         if tn not in tasks:
-            c.fail(key, f"task {tn!r} is not in grid.tasks")
+            c.fail(key, f"task {tn!r} is not in {in_grid}tasks")
         defaults = option_defaults.get(tn, {})
         for o, v in opts.items():
             if o not in defaults:
@@ -356,7 +347,65 @@ def parse_grid(text: str, label: str = "<grid>", name: str = "grid") -> Grid:
                 fractions=fractions, noise=noise, physics=physics, seeds=seeds,
                 seconds_per_cell=float(seconds), iterations_per_cell=ints["iterations_per_cell"],
                 memory_mb_per_cell=ints["memory_mb_per_cell"], learner_params=learner_params,
-                system_params=system_params, task_options=task_options)
+                system_params=system_params, task_options=task_options,
+                products=tuple(products) if len(products) > 1 else ())
+
+
+def _parse_product(c: _Checker, g: dict, where: str, known_systems, task_names, classes) -> tuple:
+    """Check one ``[grid]`` table or ``[[grid]]`` block; its seven lists.
+
+    ``classes`` collects name -> learner class for the learners seen.
+    """
+    from surrogates.data import PHYSICS_LEVELS
+    from surrogates.registry import available_learners, learner_class
+
+    c.unknown_keys(g, _GRID_KEYS, where)
+    for required in ("systems", "tasks", "learners"):
+        if required not in g:
+            c.fail(f"{where}.{required}", "missing (the grid would be empty)")
+
+    def check_system(s):
+        if s not in known_systems:
+            c.fail(f"{where}.systems", f"unknown system {s!r} (valid: {', '.join(known_systems)})")
+
+    def check_task(t):
+        if t not in task_names:
+            c.fail(f"{where}.tasks", f"unknown task {t!r} (valid: {', '.join(task_names)})")
+
+    def check_fraction(f):
+        if not 0.0 < f <= 1.0:
+            c.fail(f"{where}.fractions", f"fraction {f!r} is outside (0, 1]")
+
+    def check_noise(n):
+        if n < 0:
+            c.fail(f"{where}.noise", f"noise level {n!r} is negative")
+
+    def check_physics(p):
+        if p not in PHYSICS_LEVELS:
+            c.fail(f"{where}.physics", f"unknown physics level {p!r} (valid: {', '.join(PHYSICS_LEVELS)})")
+
+    def check_seed(s):
+        if s < 0 or s >= 2**63:
+            c.fail(f"{where}.seeds", f"seed {s!r} must be in [0, 2**63)")
+
+    systems = c.list_of(g["systems"], f"{where}.systems", "str", check_system)
+    tasks = c.list_of(g["tasks"], f"{where}.tasks", "str", check_task)
+    learners = c.list_of(g["learners"], f"{where}.learners", "str")
+    for ln in learners:
+        if ln in classes:
+            continue
+        try:
+            classes[ln] = learner_class(ln)
+        except ValueError as exc:
+            msg = str(exc)
+            if ":" not in ln and "unknown learner" not in msg:
+                msg = f"{msg} (valid: {', '.join(available_learners())})"
+            c.fail(f"{where}.learners", msg)
+    fractions = c.list_of(g.get("fractions", [1.0]), f"{where}.fractions", "number", check_fraction)
+    noise = c.list_of(g.get("noise", [0.0]), f"{where}.noise", "number", check_noise)
+    physics = c.list_of(g.get("physics", ["none"]), f"{where}.physics", "str", check_physics)
+    seeds = c.list_of(g.get("seeds", [0]), f"{where}.seeds", "int", check_seed)
+    return systems, tasks, learners, fractions, noise, physics, seeds
 
 
 def load_grid(path) -> Grid:

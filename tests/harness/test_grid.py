@@ -166,3 +166,51 @@ def test_missing_grid_file_is_one_line(tmp_path, capsys):
     assert main(["run", str(tmp_path / "absent.toml"), "--quiet"]) == 2
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "does not exist" in err
+
+
+_BLOCKS = """
+[[grid]]
+systems = ["lorenz63"]
+tasks = ["forecast"]
+learners = ["persistence", "esn"]
+seeds = [0, 1]
+
+[[grid]]
+systems = ["lorenz63", "rossler"]
+tasks = ["forecast"]
+learners = ["esn"]
+fractions = [0.1, 1.0]
+seeds = [1]
+
+[learner.esn]
+n_nodes = 50
+"""
+
+
+def test_grid_blocks_are_a_union_with_shared_tables():
+    g = parse_grid(_BLOCKS)
+    cells = g.cells()
+    got = {(c.system, c.learner, c.fraction, c.seed) for c in cells}
+    # block 1: 1 x 2 learners x 2 seeds = 4; block 2: 2 systems x 2 fractions = 4, of which
+    # (lorenz63, esn, 1.0, 1) is already in block 1
+    assert len(cells) == g.n_cells == 7 == len(got)
+    assert ("lorenz63", "esn", 1.0, 1) in got and ("rossler", "esn", 0.1, 1) in got
+    assert ("rossler", "persistence", 1.0, 0) not in got  # blocks are not crossed with each other
+    assert all(c.learner_params == {"n_nodes": 50} for c in cells if c.learner == "esn")
+    # the same cell has the same key whichever block (or single-table grid) names it
+    single = parse_grid("[grid]" + _BLOCKS.split("[[grid]]")[1] + "\n[learner.esn]\nn_nodes = 50\n")
+    assert {c.key() for c in single.cells()} <= {c.key() for c in cells}
+    assert g.systems == ("lorenz63", "rossler") and g.fractions == (1.0, 0.1)
+
+
+@pytest.mark.parametrize("text, word", [
+    (_BLOCKS.replace('learners = ["esn"]', 'learners = ["nope"]'), "grid[2].learners"),
+    (_BLOCKS.replace("fractions = [0.1, 1.0]", "fractions = [2.0]"), "grid[2].fractions"),
+    (_BLOCKS.replace('tasks = ["forecast"]\nlearners = ["esn"]', 'learners = ["esn"]'), "grid[2].tasks"),
+    (_BLOCKS + '\n[learner.sindy]\nthreshold = 0.1\n', "not in any [[grid]] block's learners"),
+    ("grid = []\n", "no [[grid]] blocks"),
+])
+def test_bad_grid_block_is_named(text, word):
+    with pytest.raises(GridError) as info:
+        parse_grid(text, label="s.toml")
+    assert word in str(info.value) and "\n" not in str(info.value)
