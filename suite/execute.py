@@ -91,6 +91,8 @@ def _peak_memory_mb() -> float:
 
 def check_applicable(caps, system, task: str, physics: str) -> str | None:
     """The reason a learner with capabilities ``caps`` cannot run this cell, or None."""
+    if task == "climate" and system.no_climate:
+        return f"task climate does not apply to {system.name}: {system.no_climate}"
     if task == "identify" and physics == "none":
         return "task identify needs the equations: physics level full or partial"
     if task not in caps.tasks:
