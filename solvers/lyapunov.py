@@ -250,7 +250,6 @@ def _tangent_mode(tangent, step, d, k):
     return tangent
 
 
-
 def _run(f, y0, params, dt, t_end, transient, renorm_every, k, t0, step, name, tangent="auto"):
     y0 = np.asarray(y0, dtype=np.float64)
     if y0.ndim != 1:
