@@ -5,6 +5,7 @@ from __future__ import annotations
 import itertools
 
 import numpy as np
+import scipy.linalg
 
 from ._sampling import analogue_history, refine, steps_per_output
 from .base import Capabilities, Learner
@@ -130,11 +131,7 @@ class NextGenerationRC(Learner):
                 f"next-generation RC with k={k}, s={s} needs trajectories of more than {lag + 1} samples")
         phi, target = np.concatenate(feats), np.concatenate(targets)
         self.bound_ = 100.0 * (1.0 + max(float(np.max(np.abs(u))) for u in self._train_inputs_))
-        # ridge regression as least squares on the augmented system [phi; sqrt(ridge) I]
-        # (better conditioned than the normal equations when features differ in scale)
-        aug = np.concatenate([phi, np.sqrt(float(self.ridge)) * np.eye(n_feat)])
-        rhs = np.concatenate([target, np.zeros((n_feat, d))])
-        w = np.linalg.lstsq(aug, rhs, rcond=None)[0]
+        w = _ridge(phi, target, float(self.ridge))
         if not np.all(np.isfinite(w)):
             raise DivergedError("the readout fit produced non-finite weights")
         self.w_out_ = w.T
@@ -177,3 +174,26 @@ class NextGenerationRC(Learner):
 
     def _n_parameters(self) -> int:
         return int(self.w_out_.size)
+
+
+def _ridge(phi: np.ndarray, target: np.ndarray, ridge: float) -> np.ndarray:
+    """Ridge weights ``argmin |phi w - target|^2 + ridge |w|^2``, shape (n_features, d).
+
+    With at least as many samples as features: least squares on the augmented
+    system ``[phi; sqrt(ridge) I]`` (better conditioned than the normal
+    equations when features differ in scale). With more features than
+    samples (high-dimensional states: 64 variables and two delays give 8,385
+    quadratic features), the same weights from the dual form
+    ``w = phi^T (phi phi^T + ridge I)^{-1} target`` (the push-through
+    identity), which costs ``n^2 p`` instead of ``n p^2`` (measured: 435 s ->
+    seconds for Kuramoto-Sivashinsky).
+    """
+    n, n_feat = phi.shape
+    if n_feat <= n:
+        aug = np.concatenate([phi, np.sqrt(ridge) * np.eye(n_feat)])
+        rhs = np.concatenate([target, np.zeros((n_feat, target.shape[1]))])
+        return np.linalg.lstsq(aug, rhs, rcond=None)[0]
+    gram = phi @ phi.T
+    gram[np.diag_indices_from(gram)] += ridge
+    alpha = scipy.linalg.solve(gram, target, assume_a="pos")
+    return phi.T @ alpha

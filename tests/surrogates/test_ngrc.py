@@ -111,3 +111,16 @@ def test_bad_input(setup):
         NextGenerationRC().fit(data, phys)
     with pytest.raises(InvalidDataError, match="multiple"):
         model.rollout(y[[500]], 0.6 * DT * np.arange(5))
+
+
+@pytest.mark.parametrize("n, p", [(40, 12), (30, 200)])
+def test_ridge_readout_matches_numpy_least_squares_in_both_forms(n, p):
+    """Primal (n >= p) and dual (p > n) ridge give the weights of the augmented least-squares
+    problem solved by numpy.linalg.lstsq (the push-through identity; closed form)."""
+    from surrogates.ngrc import _ridge
+
+    rng = np.random.default_rng(7)
+    phi, target, lam = rng.standard_normal((n, p)), rng.standard_normal((n, 3)), 1e-3
+    aug = np.concatenate([phi, np.sqrt(lam) * np.eye(p)])
+    expected = np.linalg.lstsq(aug, np.concatenate([target, np.zeros((p, 3))]), rcond=None)[0]
+    np.testing.assert_allclose(_ridge(phi, target, lam), expected, rtol=1e-9, atol=1e-11)
