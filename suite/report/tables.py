@@ -219,8 +219,14 @@ def _best(t: Table) -> dict:
     return {"median": arg([r.median for r in t.rows], t.higher_is_better),
             "train": arg([r.train_seconds for r in t.rows], False),
             "inference": arg([r.inference_seconds for r in t.rows], False),
-            "speedup": arg([r.speedup for r in t.rows], True),
-            "speedup_with_training": arg([r.speedup_with_training for r in t.rows], True)}
+            "speedup": arg([np.nan if _useless(t, r) else r.speedup for r in t.rows], True),
+            "speedup_with_training": arg([np.nan if _useless(t, r) else r.speedup_with_training
+                                          for r in t.rows], True)}
+
+
+def _useless(t: Table, r) -> bool:
+    """A forecaster that is wrong within one Lyapunov time: its speed-up buys nothing."""
+    return t.metric == "valid_prediction_time" and np.isfinite(r.median) and r.median < 1.0
 
 
 def _notes(t: Table) -> list[str]:
@@ -229,7 +235,9 @@ def _notes(t: Table) -> list[str]:
     if t.metric == "valid_prediction_time":
         short = [r.learner for r in t.rows if np.isfinite(r.median) and r.median < 1.0]
         if short:
-            notes.append(f"Valid prediction time below one Lyapunov time (no useful forecast): {', '.join(short)}.")
+            notes.append(f"Valid prediction time below one Lyapunov time (no useful forecast): {', '.join(short)}. "
+                         "Their speed-ups (marked †) buy nothing and are not ranked: do not use these learners "
+                         "as forecasters here.")
         capped = [r.learner for r in t.rows if np.isfinite(r.median) and np.isfinite(r.horizon)
                   and r.median >= r.horizon * (1 - 1e-6)]
         if capped:
@@ -325,11 +333,17 @@ def _cells_text(t: Table) -> tuple[list[str], list[list[str]], dict]:
                      f"{_fmt(r.median)} [{_fmt(r.q25)}, {_fmt(r.q75)}]" if np.isfinite(r.median) else "—",
                      f"[{_fmt(r.ci_low)}, {_fmt(r.ci_high)}]" if np.isfinite(r.ci_low) else "—",
                      _fmt(r.train_seconds), _fmt(r.inference_seconds),
-                     (_fmt(r.speedup) + "×") if np.isfinite(r.speedup) else "—",
-                     (_fmt(r.speedup_with_training) + "×") if np.isfinite(r.speedup_with_training) else "—",
+                     _speedup_text(r.speedup, _useless(t, r)),
+                     _speedup_text(r.speedup_with_training, _useless(t, r)),
                      f"{c['failed']} / {c['diverged']} / {c['timeout']} / {c['not_applicable']}"])
     cols = {"median": 2, "train": 4, "inference": 5, "speedup": 6, "speedup_with_training": 7}
     return head, body, cols
+
+
+def _speedup_text(x: float, useless: bool) -> str:
+    if not np.isfinite(x):
+        return "—"
+    return _fmt(x) + "×" + (" †" if useless else "")
 
 
 def table_markdown(t: Table) -> str:
@@ -344,7 +358,8 @@ def table_markdown(t: Table) -> str:
 
 def _tex(s: str) -> str:
     for a, b in (("\\", r"\textbackslash{}"), ("&", r"\&"), ("%", r"\%"), ("_", r"\_"), ("#", r"\#"),
-                 ("{", r"\{"), ("}", r"\}"), ("×", r"$\times$"), ("—", "--"), ("·", r"$\cdot$")):
+                 ("{", r"\{"), ("}", r"\}"), ("×", r"$\times$"), ("—", "--"), ("·", r"$\cdot$"),
+                 ("†", r"\dag{}")):
         s = s.replace(a, b) if a != "\\" else s.replace(a, "\x00")
     return s.replace("\x00", r"\textbackslash{}")
 
