@@ -78,11 +78,11 @@ from typing import Callable
 
 import numpy as np
 
-from surrogates import DivergedError, LearnerError, TASKS
+from surrogates import TASKS, DivergedError, LearnerError, NotApplicableError
 
 from . import metrics as M
 from .cell import MetricRow
-from .datasets import (DataStreams, ReferenceUnavailableError, reference_with_horizon, trajectory_dataset,
+from .datasets import (DataStreams, reference_with_horizon, trajectory_dataset,
                        trusted_trajectory, window_dataset)
 from .systems.reference import initial_conditions
 
@@ -366,9 +366,11 @@ def forecast_problem(ctx: TaskContext, dt: float | None = None, n_starts: int | 
     ref_bound = float(min(avail))
     h_eff = min(horizon, ref_bound)
     n = int(np.floor(h_eff / dt * (1 + 1e-9) + 1e-9)) + 1
-    if n < 3:
-        raise ReferenceUnavailableError(
-            f"reference horizon {ref_bound / tu:.3g} time units leaves no forecast window")
+    if n < 3:  # a property of this sampling step, not a fault of the learner
+        raise NotApplicableError(
+            f"at output step {dt:g} the {m}-sample history spans {hist_time / tu:.3g} time units of "
+            f"{system.name} and leaves {max(ref_bound, 0.0) / tu:.3g} of the reference's trusted horizon "
+            f"for the forecast: fewer than 3 output times to score")
     truth = np.stack([tr[:n] for tr in truths])
     return {"history": np.stack(histories), "y0s": truth[:, 0], "t_out": dt * np.arange(n),
             "t_start": hist_time, "truth": truth, "reference_horizon": ref_bound / tu,

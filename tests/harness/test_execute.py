@@ -322,6 +322,17 @@ def test_regular_sampling_for_learners_that_need_it():
     assert hist_shape == (1, 2, 3)
 
 
+def test_history_longer_than_the_trusted_reference_is_not_applicable():
+    """At stride 25 (output step 0.25) a 200-sample history spans 49.75 time units of Lorenz-63, past
+    the horizon of the 1e-12/1e-10 reference pair (a 1e-12 difference grows like e^(0.906 t), exponent
+    from Sprott 2003, and reaches the 1e-2 threshold after about 25 time units): no forecast window,
+    a property of the sampling, not a fault of the learner."""
+    opts = dict(TINY_FORECAST, train_lyapunov_times=60.0, history_steps=200)
+    o = run_cell(spec("forecast", f"{HERE}:RegularLearner", fraction=0.04, task_options=opts))
+    assert o.status == "not_applicable", (o.status, o.error)
+    assert "200-sample history spans" in o.error and "fewer than 3 output times" in o.error
+
+
 def test_energy_drift_on_the_pendulum():
     kw = dict(physics="full", task_options=TINY_FORECAST)
     tight = run_cell(CellSpec("pendulum", "forecast", f"{HERE}:EquationLearner", **kw))
