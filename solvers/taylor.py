@@ -20,23 +20,90 @@ from jax import lax
 
 from ._compile import run_compiled
 from .result import Solution
-from .taylor_series import Series, TaylorUnsupportedError, as_series
+from .taylor_series import Series, TaylorUnsupportedError, as_series, stack_of
 
 __all__ = ["TaylorUnsupportedError", "integrate_taylor", "jorba_zou_order", "taylor_coefficients", "taylor_step"]
 
 
-def _coefficient_list(f, t, y, params, order: int):
-    y = jnp.asarray(y, dtype=jnp.float64)
-    state = Series(y, None)
+_BARRIER = False
+_SPLIT_MAX = 16  # states with at most this many components are expanded component by component
+
+
+class _Expansion:
+    """The solution's Taylor coefficients at one point, per component (small states) or per vector."""
+
+    def __init__(self, comps=None, vecs=None, as_parts=False):
+        self.comps, self.vecs, self.as_parts = comps, vecs, as_parts
+
+    @property
+    def order(self) -> int:
+        return len(self.comps[0] if self.comps is not None else self.vecs) - 1
+
+    def evaluate(self, h):
+        """The polynomial at ``h`` (Horner's rule); a tuple of components if the state was given as one."""
+        if self.comps is not None:
+            parts = tuple(_horner(c, h) for c in self.comps)
+            return parts if self.as_parts else jnp.stack(parts)
+        return _horner(self.vecs, h)
+
+    def norm(self, j):
+        """max-norm of coefficient ``j``."""
+        if self.comps is not None:
+            out = jnp.abs(self.comps[0][j])
+            for c in self.comps[1:]:
+                out = jnp.maximum(out, jnp.abs(c[j]))
+            return out
+        return jnp.max(jnp.abs(self.vecs[j]))
+
+    def stacked(self):
+        if self.comps is not None:
+            return jnp.stack([jnp.stack(c) for c in self.comps], axis=1)
+        return jnp.stack(self.vecs)
+
+
+def _scaled(c, k):
+    return 0.0 if isinstance(c, float) and c == 0.0 else c * (1.0 / (k + 1))
+
+
+def _expand(f, t, y, params, order: int) -> _Expansion:
+    """Call ``f`` once on series and run the recurrences up to ``order``.
+
+    Small states are split into one scalar input series per component,
+    stacked structurally (``y[i]`` inside the field is that series, with no
+    copy per coefficient); each output component feeds its input directly.
+    Larger states (fields written with ``roll``, ``sum``, ...) stay one
+    vector series.
+    """
+    as_parts = isinstance(y, tuple)
+    if as_parts:
+        y = tuple(jnp.asarray(c, dtype=jnp.float64) for c in y)
+    else:
+        y = jnp.asarray(y, dtype=jnp.float64)
     time = Series(jnp.asarray(t, dtype=jnp.float64), lambda k, _: 1.0 if k == 1 else 0.0, ())
-    field = f(time, state, params)
-    field = as_series(field, None)
+    split = as_parts or (y.ndim == 1 and 0 < y.shape[0] <= _SPLIT_MAX)
+    if split:
+        inputs = [Series(y[i], None) for i in range(len(y))]
+        state = stack_of(inputs)
+    else:
+        state = Series(y, None)
+    field = as_series(f(time, state, params), None)
     if field.shape != state.shape:
         raise ValueError(f"the vector field returned shape {field.shape} for a state of shape {state.shape}")
+    if not split:
+        for k in range(order):
+            state._push(_scaled(field.coef(k), k))
+        return _Expansion(vecs=[state.array(k) for k in range(order + 1)])
+    outs = field.parts if field.parts is not None else [field[i] for i in range(len(inputs))]
     for k in range(order):
-        c = field.coef(k)
-        state._push(0.0 if isinstance(c, float) and c == 0.0 else c * (1.0 / (k + 1)))
-    return [state.array(k) for k in range(order + 1)]
+        new = [_scaled(o.coef(k), k) for o in outs]
+        if _BARRIER:
+            arrs = [i for i, c in enumerate(new) if not isinstance(c, float)]
+            got = lax.optimization_barrier(tuple(new[i] for i in arrs))
+            for i, c in zip(arrs, got):
+                new[i] = c
+        for inp, c in zip(inputs, new):
+            inp._push(c)
+    return _Expansion(comps=[[inp.array(k) for k in range(order + 1)] for inp in inputs], as_parts=as_parts)
 
 
 def taylor_coefficients(f, t, y, params, order: int):
@@ -74,8 +141,7 @@ def taylor_coefficients(f, t, y, params, order: int):
     R. E. Moore, *Interval Analysis*, Prentice-Hall (1966), ch. 11.
     A. Jorba & M. Zou, Experimental Mathematics 14, 99–117 (2005), section 2.
     """
-    order = _check_order(order)
-    return jnp.stack(_coefficient_list(f, t, y, params, order))
+    return _expand(f, t, y, params, _check_order(order)).stacked()
 
 
 def _horner(cs, h):
@@ -87,7 +153,7 @@ def _horner(cs, h):
 
 def taylor_step(f, t, y, h, params, order: int):
     """One Taylor step ``y(t) -> y(t + h)`` of order ``order``; pure and jittable."""
-    return _horner(_coefficient_list(f, t, y, params, _check_order(order)), h)
+    return _expand(f, t, y, params, _check_order(order)).evaluate(h)
 
 
 def jorba_zou_order(tol: float) -> int:
@@ -108,15 +174,37 @@ def _check_order(order) -> int:
     return o
 
 
-def _jz_step(cs, y, tol, safety):
+def _split(y):
+    """The loop carry: a tuple of components for small states (one fused computation per step), else the vector."""
+    return tuple(y[i] for i in range(y.shape[0])) if 0 < y.shape[0] <= _SPLIT_MAX else y
+
+
+def _join(z):
+    return jnp.stack(z) if isinstance(z, tuple) else z
+
+
+def _max_abs(z):
+    if isinstance(z, tuple):
+        out = jnp.abs(z[0])
+        for c in z[1:]:
+            out = jnp.maximum(out, jnp.abs(c))
+        return out
+    return jnp.max(jnp.abs(z))
+
+
+def _all_finite(z):
+    return jnp.all(jnp.isfinite(_join(z)))
+
+
+def _jz_step(ex, y, tol, safety):
     """Step size from the last two coefficients (Jorba & Zou 2005, section 3.2.1)."""
-    p = len(cs) - 1
-    eps = tol * jnp.maximum(1.0, jnp.max(jnp.abs(y)))
+    p = ex.order
+    eps = tol * jnp.maximum(1.0, _max_abs(y))
     h = jnp.inf
     for j in (p - 1, p):
         if j < 1:
             continue
-        n = jnp.max(jnp.abs(cs[j]))
+        n = ex.norm(j)
         h = jnp.minimum(h, jnp.where(n > 0, (eps / jnp.where(n > 0, n, 1.0)) ** (1.0 / j), jnp.inf))
     return safety * h
 
@@ -128,9 +216,9 @@ def _fixed_one(f, order):
             h = (tb - ta) / jnp.maximum(m, 1)
 
             def body(i, z):
-                return _horner(_coefficient_list(f, ta + i * h, z, p, order), h)
+                return _expand(f, ta + i * h, z, p, order).evaluate(h)
 
-            y = lax.fori_loop(0, m, body, y)
+            y = _join(lax.fori_loop(0, m, body, _split(y)))
             return y, y
 
         _, ys = lax.scan(interval, y0, (t_out[:-1], t_out[1:], n_sub))
@@ -147,17 +235,18 @@ def _adaptive_one(f, order, max_steps):
 
             def cond(s):
                 z, t, k = s
-                return (t < tb) & (k < max_steps) & jnp.all(jnp.isfinite(z))
+                return (t < tb) & (k < max_steps) & _all_finite(z)
 
             def body(s):
                 z, t, k = s
-                cs = _coefficient_list(f, t, z, p, order)
-                h = _jz_step(cs, z, tol, safety)
+                ex = _expand(f, t, z, p, order)
+                h = _jz_step(ex, z, tol, safety)
                 last = h >= tb - t
                 h = jnp.where(last, tb - t, h)
-                return _horner(cs, h), jnp.where(last, tb, t + h), k + 1
+                return ex.evaluate(h), jnp.where(last, tb, t + h), k + 1
 
-            y, _, n = lax.while_loop(cond, body, (y, ta, n))
+            z, _, n = lax.while_loop(cond, body, (_split(y), ta, n))
+            y = _join(z)
             return (y, n), y
 
         (_, n), ys = lax.scan(interval, (y0, jnp.zeros((), jnp.int64)), (t_out[:-1], t_out[1:]))

@@ -112,7 +112,7 @@ class Series:
         Shape of every coefficient (one trajectory; ``vmap`` adds the batch).
     """
 
-    __slots__ = ("_c", "_rule", "shape", "_sc")
+    __slots__ = ("_c", "_rule", "shape", "_sc", "parts")
     __array_ufunc__ = None  # numpy scalars defer to our reflected operators
     __array_priority__ = 1000
 
@@ -120,6 +120,7 @@ class Series:
         self._c = [c0]
         self._rule = rule
         self._sc = None  # the (sin, cos) pair of this series, made once
+        self.parts = None  # for a stack along axis 0: the stacked series (indexing picks them directly)
         self.shape = tuple(shape) if shape is not None else tuple(jnp.shape(c0))
 
     # -------------------------------------------------------------- coefficients
@@ -164,6 +165,17 @@ class Series:
     def __getitem__(self, idx):
         if isinstance(idx, Series):
             raise TaylorUnsupportedError("indexing by a series")
+        if self.parts is not None:
+            # structural: y[i] of a stack is its i-th part, y[a:b] a stack of parts (no copy per coefficient)
+            first, rest = (idx[0], idx[1:]) if isinstance(idx, tuple) and idx else (idx, ())
+            if isinstance(first, (int, np.integer)) and not isinstance(first, bool):
+                out = self.parts[int(first)]
+                return out[rest] if rest else out
+            if isinstance(first, slice) and not rest:
+                return stack(self.parts[first]) if len(self.parts[first]) else self._index(idx)
+        return self._index(idx)
+
+    def _index(self, idx):
         shape = np.empty(self.shape)[idx].shape
         a = self
 
@@ -480,8 +492,19 @@ def _join(parts, fn, name):
     return Series(c0, rule, c0.shape)
 
 
+def stack_of(parts) -> Series:
+    """``stack(parts)`` along axis 0, remembering the parts so that indexing returns them unchanged."""
+    parts = [as_series(v) for v in parts]
+    out = _join(parts, lambda cs: jnp.stack(cs, axis=0), "stack")
+    if len({v.shape for v in parts}) == 1:
+        out.parts = tuple(parts)
+    return out
+
+
 def stack(parts, axis=0):
     parts = list(parts)
+    if axis == 0 and any(isinstance(v, Series) for v in parts):
+        return stack_of(parts)
     return _join(parts, lambda cs: jnp.stack(cs, axis=axis), "stack")
 
 
