@@ -25,25 +25,23 @@ from .taylor_series import Series, TaylorUnsupportedError, as_series, stack_of
 __all__ = ["TaylorUnsupportedError", "integrate_taylor", "jorba_zou_order", "taylor_coefficients", "taylor_step"]
 
 
-_BARRIER = False
 _SPLIT_MAX = 16  # states with at most this many components are expanded component by component
 
 
 class _Expansion:
     """The solution's Taylor coefficients at one point, per component (small states) or per vector."""
 
-    def __init__(self, comps=None, vecs=None, as_parts=False):
-        self.comps, self.vecs, self.as_parts = comps, vecs, as_parts
+    def __init__(self, comps=None, vecs=None):
+        self.comps, self.vecs = comps, vecs
 
     @property
     def order(self) -> int:
         return len(self.comps[0] if self.comps is not None else self.vecs) - 1
 
     def evaluate(self, h):
-        """The polynomial at ``h`` (Horner's rule); a tuple of components if the state was given as one."""
+        """The polynomial at ``h`` (Horner's rule)."""
         if self.comps is not None:
-            parts = tuple(_horner(c, h) for c in self.comps)
-            return parts if self.as_parts else jnp.stack(parts)
+            return jnp.stack([_horner(c, h) for c in self.comps])
         return _horner(self.vecs, h)
 
     def norm(self, j):
@@ -68,42 +66,34 @@ def _scaled(c, k):
 def _expand(f, t, y, params, order: int) -> _Expansion:
     """Call ``f`` once on series and run the recurrences up to ``order``.
 
-    Small states are split into one scalar input series per component,
-    stacked structurally (``y[i]`` inside the field is that series, with no
-    copy per coefficient); each output component feeds its input directly.
-    Larger states (fields written with ``roll``, ``sum``, ...) stay one
-    vector series.
+    A small state is first split into one scalar input series per
+    component, stacked structurally (``y[i]`` inside the field is that
+    series, with no copy per coefficient). If the field builds its value
+    as a stack of components (``stack([dx, dy, dz])``), each output
+    component feeds its input directly and the whole step is scalar code
+    per trajectory. Otherwise (fields written with ``roll``, ``sum``, ...)
+    the field is traced again on one vector series.
     """
-    as_parts = isinstance(y, tuple)
-    if as_parts:
-        y = tuple(jnp.asarray(c, dtype=jnp.float64) for c in y)
-    else:
-        y = jnp.asarray(y, dtype=jnp.float64)
+    y = jnp.asarray(y, dtype=jnp.float64)
     time = Series(jnp.asarray(t, dtype=jnp.float64), lambda k, _: 1.0 if k == 1 else 0.0, ())
-    split = as_parts or (y.ndim == 1 and 0 < y.shape[0] <= _SPLIT_MAX)
-    if split:
-        inputs = [Series(y[i], None) for i in range(len(y))]
-        state = stack_of(inputs)
-    else:
-        state = Series(y, None)
+    if y.ndim == 1 and 0 < y.shape[0] <= _SPLIT_MAX:
+        inputs = [Series(y[i], None) for i in range(y.shape[0])]
+        field = as_series(f(time, stack_of(inputs), params), None)
+        if field.shape != y.shape:
+            raise ValueError(f"the vector field returned shape {field.shape} for a state of shape {y.shape}")
+        if field.parts is not None:
+            for k in range(order):
+                new = [_scaled(o.coef(k), k) for o in field.parts]
+                for inp, c in zip(inputs, new):
+                    inp._push(c)
+            return _Expansion(comps=[[inp.array(k) for k in range(order + 1)] for inp in inputs])
+    state = Series(y, None)
     field = as_series(f(time, state, params), None)
     if field.shape != state.shape:
         raise ValueError(f"the vector field returned shape {field.shape} for a state of shape {state.shape}")
-    if not split:
-        for k in range(order):
-            state._push(_scaled(field.coef(k), k))
-        return _Expansion(vecs=[state.array(k) for k in range(order + 1)])
-    outs = field.parts if field.parts is not None else [field[i] for i in range(len(inputs))]
     for k in range(order):
-        new = [_scaled(o.coef(k), k) for o in outs]
-        if _BARRIER:
-            arrs = [i for i, c in enumerate(new) if not isinstance(c, float)]
-            got = lax.optimization_barrier(tuple(new[i] for i in arrs))
-            for i, c in zip(arrs, got):
-                new[i] = c
-        for inp, c in zip(inputs, new):
-            inp._push(c)
-    return _Expansion(comps=[[inp.array(k) for k in range(order + 1)] for inp in inputs], as_parts=as_parts)
+        state._push(_scaled(field.coef(k), k))
+    return _Expansion(vecs=[state.array(k) for k in range(order + 1)])
 
 
 def taylor_coefficients(f, t, y, params, order: int):
@@ -174,32 +164,10 @@ def _check_order(order) -> int:
     return o
 
 
-def _split(y):
-    """The loop carry: a tuple of components for small states (one fused computation per step), else the vector."""
-    return tuple(y[i] for i in range(y.shape[0])) if 0 < y.shape[0] <= _SPLIT_MAX else y
-
-
-def _join(z):
-    return jnp.stack(z) if isinstance(z, tuple) else z
-
-
-def _max_abs(z):
-    if isinstance(z, tuple):
-        out = jnp.abs(z[0])
-        for c in z[1:]:
-            out = jnp.maximum(out, jnp.abs(c))
-        return out
-    return jnp.max(jnp.abs(z))
-
-
-def _all_finite(z):
-    return jnp.all(jnp.isfinite(_join(z)))
-
-
 def _jz_step(ex, y, tol, safety):
     """Step size from the last two coefficients (Jorba & Zou 2005, section 3.2.1)."""
     p = ex.order
-    eps = tol * jnp.maximum(1.0, _max_abs(y))
+    eps = tol * jnp.maximum(1.0, jnp.max(jnp.abs(y)))
     h = jnp.inf
     for j in (p - 1, p):
         if j < 1:
@@ -218,7 +186,7 @@ def _fixed_one(f, order):
             def body(i, z):
                 return _expand(f, ta + i * h, z, p, order).evaluate(h)
 
-            y = _join(lax.fori_loop(0, m, body, _split(y)))
+            y = lax.fori_loop(0, m, body, y)
             return y, y
 
         _, ys = lax.scan(interval, y0, (t_out[:-1], t_out[1:], n_sub))
@@ -235,7 +203,7 @@ def _adaptive_one(f, order, max_steps):
 
             def cond(s):
                 z, t, k = s
-                return (t < tb) & (k < max_steps) & _all_finite(z)
+                return (t < tb) & (k < max_steps) & jnp.all(jnp.isfinite(z))
 
             def body(s):
                 z, t, k = s
@@ -245,8 +213,7 @@ def _adaptive_one(f, order, max_steps):
                 h = jnp.where(last, tb - t, h)
                 return ex.evaluate(h), jnp.where(last, tb, t + h), k + 1
 
-            z, _, n = lax.while_loop(cond, body, (_split(y), ta, n))
-            y = _join(z)
+            y, _, n = lax.while_loop(cond, body, (y, ta, n))
             return (y, n), y
 
         (_, n), ys = lax.scan(interval, (y0, jnp.zeros((), jnp.int64)), (t_out[:-1], t_out[1:]))

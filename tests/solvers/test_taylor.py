@@ -114,7 +114,7 @@ def _exact_components(t):
 
 
 def test_coefficients_match_mpmath_taylor_of_closed_forms():
-    order = 12
+    order = 10
     got = np.asarray(jax.jit(lambda y: taylor_coefficients(known, T0, y, {}, order))(jnp.asarray(Y0)))
     assert got.shape == (order + 1, 6)
     with mpmath.workdps(30):
@@ -159,7 +159,7 @@ def test_lorenz96_roll_field_matches_dop853():
     s = get_system("lorenz96", N=10)
     y0 = s.default_y0() + np.random.default_rng(5).normal(size=10)
     t = np.linspace(0.0, 1.0, 6)
-    ours = integrate_taylor(s.rhs(), y0, t, s.params, dt=0.02, order=16)
+    ours = integrate_taylor(s.rhs(), y0, t, s.params, dt=0.01, order=10)
     ref = solve_scipy(s.rhs(), (0.0, 1.0), y0, s.params, method="DOP853", t_eval=t, rtol=1e-13, atol=1e-13)
     assert np.abs(ours.y - ref.y).max() < 1e-10
 
