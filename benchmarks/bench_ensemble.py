@@ -74,7 +74,7 @@ from _common import ROOT, machine, timed, timed_cpu, write_results  # noqa: E402
 import numpy as np  # noqa: E402
 
 FLOPS_PER_STEP = 78
-TAYLOR_ORDERS = (12, 16, 20)
+TAYLOR_ORDERS = (10, 12, 14, 16, 20)
 TAYLOR_STEPS = (200, 250, 280, 320, 360, 400, 450, 500, 560, 640, 720, 800, 1000, 1250, 1600, 2000)
 T_END = 10.0
 N_OUT = 10  # outputs at t = 0, 1, ..., 10

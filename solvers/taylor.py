@@ -41,7 +41,7 @@ class _Expansion:
     def evaluate(self, h):
         """The polynomial at ``h`` (Horner's rule)."""
         if self.comps is not None:
-            return jnp.stack([_horner(c, h) for c in self.comps])
+            return jnp.stack(_together([_horner(c, h) for c in self.comps]))
         return _horner(self.vecs, h)
 
     def norm(self, j):
@@ -57,6 +57,25 @@ class _Expansion:
         if self.comps is not None:
             return jnp.stack([jnp.stack(c) for c in self.comps], axis=1)
         return jnp.stack(self.vecs)
+
+
+def _together(parts):
+    """``parts`` unchanged (``x + 0.0`` is exact), as the outputs of one variadic reduction.
+
+    XLA's CPU code generator evaluates a fused computation once per output
+    element: returning the components of a step as separate values (or a
+    stack of them) makes every component recompute the whole shared
+    coefficient recurrence, a factor d in work. The outputs of one variadic
+    ``reduce`` are generated in one loop body, so the recurrence is
+    evaluated once per trajectory (measured: about 2x faster for Lorenz-63
+    at order 12). Numerically this is the identity.
+    """
+    if len(parts) < 2:
+        return list(parts)
+    ops = tuple(jnp.stack([c, jnp.zeros_like(c)]) for c in parts)
+    out = lax.reduce(ops, tuple(np.float64(0.0) for _ in ops),
+                     lambda a, b: tuple(u + v for u, v in zip(a, b)), (0,))
+    return list(out)
 
 
 def _scaled(c, k):
