@@ -44,9 +44,10 @@ the product ``x y`` (2k + 1), and the division of the three by (k + 1)
 3: 12 + 4k per coefficient, 2p^2 + 10p over k = 0..p-1; summing the
 polynomial by Horner's rule is 2p per component, 6p. Total 2p^2 + 16p per
 step per trajectory (480 at p = 12, 768 at p = 16). The count is of the
-algorithm; XLA may evaluate parts of the shared recurrence more than once
-(once per output component of the fused step), which the measured rate
-does not credit.
+algorithm as written; the compiled step evaluates the shared recurrence
+once per trajectory (the components leave the fused step through one
+variadic reduction, see ``solvers.taylor._together``), so the two agree
+up to what XLA folds (multiplications by 1).
 
 The error of an ensemble is the 95th percentile over its trajectories of
 each one's maximum error (see :func:`ens_error` for why not the maximum).

@@ -100,8 +100,10 @@ def _exact_components(t):
     # closed forms of KNOWN (by separation of variables / direct integration), evaluated in mpmath
     y0 = [mpmath.mpf(v) for v in Y0]
     s = t - T0
+
     def prim(u):  # an antiderivative of log(u + 2) + cos(u)^3 + tanh(u)
-        return (u + 2) * mpmath.log(u + 2) - (u + 2) + mpmath.sin(u) - mpmath.sin(u) ** 3 / 3 + mpmath.log(mpmath.cosh(u))
+        return ((u + 2) * mpmath.log(u + 2) - (u + 2) + mpmath.sin(u) - mpmath.sin(u) ** 3 / 3
+                + mpmath.log(mpmath.cosh(u)))
 
     return [
         (y0[0] ** -0.5 - s / 2) ** -2,
@@ -131,6 +133,15 @@ def test_step_matches_closed_form_and_time_is_a_series():
     with mpmath.workdps(30):
         exact = [float(v) for v in _exact_components(mpmath.mpf(T0) + mpmath.mpf(h))]
     np.testing.assert_allclose(y1, exact, rtol=1e-13)
+
+
+def test_step_is_the_taylor_polynomial_of_the_coefficients():
+    # y(t + h) = sum_k y_k h^k (definition of the Taylor polynomial), summed here by numpy
+    y0 = jnp.asarray([1.0, 2.0, 20.0])
+    cs = np.asarray(taylor_coefficients(lorenz, 0.0, y0, LORENZ_P, 12))
+    step = np.asarray(jax.jit(lambda y: taylor_step(lorenz, 0.0, y, 0.01, LORENZ_P, 12))(y0))
+    np.testing.assert_allclose(step, np.polyval(cs[::-1], 0.01), rtol=1e-15, atol=0)
+    assert np.abs(cs[1] - np.asarray(lorenz(0.0, y0, LORENZ_P))).max() == 0.0  # y_1 = f(y)
 
 
 def test_lorenz63_matches_dop853_inside_predictability_horizon():
