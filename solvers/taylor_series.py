@@ -305,6 +305,9 @@ class Series:
     __floordiv__ = __rfloordiv__ = _no("//")
     __mod__ = __rmod__ = _no("%")
     __matmul__ = __rmatmul__ = _no("@")
+    __eq__ = _no("==")
+    __ne__ = _no("!=")
+    __hash__ = object.__hash__
     del _no
 
     def __bool__(self):
@@ -570,6 +573,8 @@ class TaylorNamespace:
         return asarray(x, dtype)
 
     def __getattr__(self, name):
+        if name.startswith("__"):
+            raise AttributeError(name)
         raise TaylorUnsupportedError(name)
 
     def __repr__(self):
