@@ -316,6 +316,9 @@ class Series:
     def __float__(self):
         raise TaylorUnsupportedError("float() of a series", "the state is a series, not a number")
 
+    def __array__(self, *args, **kwargs):
+        raise TaylorUnsupportedError("conversion to a numpy array", "use the namespace from array_namespace")
+
     def __repr__(self):
         return f"Series(shape={self.shape}, known={len(self._c)})"
 
