@@ -7,6 +7,17 @@ coefficients ``y_0 = y, y_{k+1} = F_k / (k + 1)`` (``F_k`` the field's
 polynomial ``y(t + h) = sum_k y_k h^k`` by Horner's rule. Coefficients cost
 O(p^2) operations per step (the recurrences of products, quotients and
 elementary functions), not the O(p^3) or worse of nested differentiation.
+
+Steps are either fixed (at most ``dt``, landing exactly on the output
+times) or controlled by the size of the last two coefficients with the
+order chosen from the tolerance, after Jorba & Zou.
+
+References
+----------
+R. E. Moore, *Interval Analysis*, Prentice-Hall (1966), ch. 11.
+A. Jorba & M. Zou, "A software package for the numerical integration of
+ODEs by means of high-order Taylor methods", Experimental Mathematics 14,
+99–117 (2005).
 """
 
 from __future__ import annotations
@@ -166,7 +177,7 @@ def taylor_step(f, t, y, h, params, order: int):
 
 
 def jorba_zou_order(tol: float) -> int:
-    """Order ``ceil(-ln(tol) / 2 + 1)`` that Jorba & Zou (2005, section 3.2) derive as optimal for a tolerance."""
+    """Order ``ceil(-ln(tol) / 2 + 1)`` that Jorba & Zou (2005, section 3) derive as optimal for a tolerance."""
     tol = float(tol)
     if not 0.0 < tol < 1.0:
         raise ValueError(f"tol must lie in (0, 1), got {tol!r}")
@@ -184,7 +195,7 @@ def _check_order(order) -> int:
 
 
 def _jz_step(ex, y, tol, safety):
-    """Step size from the last two coefficients (Jorba & Zou 2005, section 3.2.1)."""
+    """Step size from the last two coefficients (Jorba & Zou 2005, section 3; eps_a = eps_r = tol)."""
     p = ex.order
     eps = tol * jnp.maximum(1.0, jnp.max(jnp.abs(y)))
     h = jnp.inf
@@ -394,7 +405,7 @@ def integrate_taylor(f, y0, t_eval, params, *, order=None, dt=None, tol=None, sa
     (recursive Taylor coefficients).
     A. Jorba & M. Zou, "A software package for the numerical integration of
     ODEs by means of high-order Taylor methods", Experimental Mathematics
-    14, 99–117 (2005), section 2 (coefficients) and section 3.2 (step size
+    14, 99–117 (2005), section 2 (coefficients) and section 3 (step size
     from the last two coefficients, order from the tolerance).
 
     Examples
