@@ -241,7 +241,11 @@ def _adaptive_one(f, order, max_steps):
                 h = _jz_step(ex, z, tol, safety)
                 last = h >= tb - t
                 h = jnp.where(last, tb - t, h)
-                return ex.evaluate(h), jnp.where(last, tb, t + h), k + 1
+                if ex.comps is None:
+                    return ex.evaluate(h), jnp.where(last, tb, t + h), k + 1
+                # the new time leaves the fused step with the components (see _together)
+                *parts, t_new = _together([_horner(c, h) for c in ex.comps] + [jnp.where(last, tb, t + h)])
+                return jnp.stack(parts), t_new, k + 1
 
             y, _, n = lax.while_loop(cond, body, (y, ta, n))
             return (y, n), y
