@@ -322,8 +322,10 @@ def _integrate(f, y0, t_eval, params, *, order=None, dt=None, tol=None, safety=0
             def local(p_, ys, *a_):
                 return jax.vmap(lambda y: one(p_, y, *a_))(ys)
 
+            # check_vma off: in the controlled loop the time and step count start replicated and become
+            # per-trajectory (batch-varying) after the first step; every value is computed per shard anyway
             return jax.shard_map(local, mesh=mesh, in_specs=(P(), P("batch")) + (P(),) * len(a),
-                                 out_specs=(P("batch"), P("batch")))(p, y0_, *a)
+                                 out_specs=(P("batch"), P("batch")), check_vma=mode == "fixed")(p, y0_, *a)
 
         key = ("integrate_taylor_sharded", f, order, mode, max_steps if mode == "adaptive" else 0, n_out,
                tuple(d.id for d in devs))
