@@ -13,6 +13,8 @@ Contents
 - :func:`integrate_separable`, :func:`integrate_hamiltonian` and the steps
   :func:`verlet_step`, :func:`yoshida4_step`, :func:`implicit_midpoint_step`.
 - :func:`etdrk4`, :func:`make_etdrk4_step` — stiff semilinear PDEs.
+- :func:`integrate_taylor`, :func:`taylor_coefficients`, :func:`taylor_step` —
+  high-order Taylor series with automatic coefficients in JAX, batched.
 - :func:`solve_mpmath`, :func:`cross_check` — high precision and solver agreement.
 - :func:`lyapunov_spectrum`, :func:`largest_lyapunov_exponent`,
   :func:`kaplan_yorke_dimension`.
@@ -39,6 +41,7 @@ from .symplectic import (
     yoshida4_step,
 )
 from .tableau import DOPRI5, HEUN2, RK3, RK4, ButcherTableau
+from .taylor import TaylorUnsupportedError, integrate_taylor, jorba_zou_order, taylor_coefficients, taylor_step
 
 __all__ = [
     "DOPRI5",
@@ -50,6 +53,7 @@ __all__ = [
     "LyapunovResult",
     "MPNumber",
     "Solution",
+    "TaylorUnsupportedError",
     "array_namespace",
     "cross_check",
     "dopri5",
@@ -59,6 +63,8 @@ __all__ = [
     "integrate_fixed",
     "integrate_hamiltonian",
     "integrate_separable",
+    "integrate_taylor",
+    "jorba_zou_order",
     "kaplan_yorke_dimension",
     "largest_lyapunov_exponent",
     "lyapunov_spectrum",
@@ -68,6 +74,8 @@ __all__ = [
     "rk_step",
     "solve_mpmath",
     "solve_scipy",
+    "taylor_coefficients",
+    "taylor_step",
     "verlet_step",
     "yoshida4_step",
 ]
