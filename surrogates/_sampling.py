@@ -7,7 +7,20 @@ from scipy.spatial import cKDTree
 
 from .errors import InvalidDataError
 
-__all__ = ["steps_per_output", "analogue_history", "refine"]
+__all__ = ["steps_per_output", "substeps", "analogue_history", "refine"]
+
+
+def substeps(t, step: float) -> tuple[float, int]:
+    """Output spacing ``h`` of ``t`` (at least two times) and the integrator steps per output step.
+
+    For continuous-time learners, which integrate at about ``step`` and may
+    take any whole number of steps (at least one) per output step.
+    """
+    t = np.asarray(t, dtype=float)
+    h = float(t[1] - t[0])
+    if not (np.isfinite(h) and h > 0) or not np.allclose(np.diff(t), h, rtol=1e-6, atol=1e-12):
+        raise InvalidDataError("rollout times must be equally spaced and increasing")
+    return h, max(1, int(round(h / step)))
 
 
 def steps_per_output(t, dt, who):

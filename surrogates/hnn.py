@@ -11,6 +11,7 @@ import numpy as np
 from solvers import integrate_hamiltonian, integrate_separable
 
 from ._chunked_training import cached, make_chunk, run_chunks
+from ._sampling import substeps
 from ._nets import ACTIVATIONS, apply_mlp, count_params, init_mlp
 from .base import Capabilities, Learner
 from .errors import DivergedError, InvalidDataError, NotApplicableError
@@ -320,10 +321,7 @@ class HamiltonianNN(Learner):
             return np.zeros((y0.shape[0], 0, y0.shape[1]))
         if n_out == 1:
             return y0[:, None, :].copy()
-        h = float(t[1] - t[0])
-        if not (math.isfinite(h) and h > 0) or not np.allclose(np.diff(t), h, rtol=1e-6, atol=1e-12):
-            raise InvalidDataError("rollout times must be equally spaced and increasing")
-        m = max(1, int(round(h / self.step_)))
+        h, m = substeps(t, self.step_)
         z0 = self._canonical(y0)
         ham, kinetic, potential = _make_hamiltonian(self.cfg_)
         n_steps = (n_out - 1) * m

@@ -17,6 +17,7 @@ from solvers import rk_scan, rk_step
 
 from ._nets import apply_mlp, count_params, init_mlp
 from ._chunked_training import cached, count_trace, make_chunk, run_chunks
+from ._sampling import substeps
 from .base import Capabilities, Learner
 from .errors import DivergedError, InvalidDataError
 
@@ -306,10 +307,7 @@ class NeuralODE(Learner):
             return np.zeros((y0.shape[0], 0, y0.shape[1]))
         if n == 1:
             return y0[:, None, :].copy()
-        h = float(t[1] - t[0])
-        if not (math.isfinite(h) and h > 0) or not np.allclose(np.diff(t), h, rtol=1e-6, atol=1e-12):
-            raise InvalidDataError("rollout times must be equally spaced and increasing")
-        m = max(1, int(round(h / self.step_)))
+        h, m = substeps(t, self.step_)
         key_cfg = tuple(sorted(self.cfg_.items()))
         roll = cached(("neural_ode.rollout", (n - 1) * m, m) + key_cfg,
                        lambda: _build_rollout(self.cfg_, (n - 1) * m, m))
