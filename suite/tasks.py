@@ -368,8 +368,8 @@ def forecast_problem(ctx: TaskContext, dt: float | None = None, n_starts: int | 
     n = int(np.floor(h_eff / dt * (1 + 1e-9) + 1e-9)) + 1
     if n < 3:  # a property of this sampling step, not a fault of the learner
         raise NotApplicableError(
-            f"at output step {dt:g} the {m}-sample history spans {hist_time / tu:.3g} time units of "
-            f"{system.name} and leaves {max(ref_bound, 0.0) / tu:.3g} of the reference's trusted horizon "
+            f"at output step {dt:g} the {m}-sample history spans {hist_time:.3g} time units of "
+            f"{system.name} and leaves {max(ref_bound, 0.0):.3g} of the reference's trusted horizon "
             f"for the forecast: fewer than 3 output times to score")
     truth = np.stack([tr[:n] for tr in truths])
     return {"history": np.stack(histories), "y0s": truth[:, 0], "t_out": dt * np.arange(n),
