@@ -22,6 +22,10 @@ _JACOBIANS: dict = {}
 _COUNTING: dict = {}
 
 
+class _CostCap(RuntimeError):
+    """Raised inside the right-hand side when ``max_nfev`` is reached."""
+
+
 def _counting_class(method: str):
     """The scipy solver class of ``method`` with a count of accepted steps."""
     cls = _COUNTING.get(method)
@@ -79,7 +83,7 @@ def _jax_jacobian(f, params, y0):
 
 
 def solve_scipy(f, t_span, y0, params, *, method: str = "DOP853", t_eval=None, rtol: float = 1e-9,
-                atol: float = 1e-12, jac=None, max_step: float = np.inf) -> Solution:
+                atol: float = 1e-12, jac=None, max_step: float = np.inf, max_nfev: int | None = None) -> Solution:
     """Integrate ``f(t, y, params)`` with ``scipy.integrate.solve_ivp``.
 
     Parameters
@@ -105,6 +109,10 @@ def solve_scipy(f, t_span, y0, params, *, method: str = "DOP853", t_eval=None, r
         differences; ``"fd"`` forces finite differences.
     max_step : float
         Largest step allowed.
+    max_nfev : int, optional
+        Stop (status ``"failed"``, message naming the limit) once the
+        right-hand side has been called this many times: a cost cap, e.g. for
+        an explicit method on a stiff problem.
 
     Returns
     -------
@@ -130,7 +138,7 @@ def solve_scipy(f, t_span, y0, params, *, method: str = "DOP853", t_eval=None, r
         if t_eval is None:
             raise ValueError("a batch of initial states (B, d) needs t_eval")
         sols = [solve_scipy(f, t_span, y, params, method=method, t_eval=t_eval, rtol=rtol, atol=atol,
-                            jac=jac, max_step=max_step) for y in y0]
+                            jac=jac, max_step=max_step, max_nfev=max_nfev) for y in y0]
         bad = [i for i, s in enumerate(sols) if not s.success]
         return Solution(
             t=t_eval, y=np.stack([s.y for s in sols]), method=f"scipy-{method}",
@@ -142,7 +150,13 @@ def solve_scipy(f, t_span, y0, params, *, method: str = "DOP853", t_eval=None, r
     if y0.ndim != 1:
         raise ValueError(f"y0 must have shape (d,) or (B, d), got {y0.shape}")
 
+    calls = [0]
+
     def rhs(t, y):
+        if max_nfev is not None:
+            calls[0] += 1
+            if calls[0] > max_nfev:
+                raise _CostCap(f"stopped after {max_nfev} right-hand-side evaluations (max_nfev)")
         return np.asarray(f(t, y, params), dtype=np.float64)
 
     kwargs = {}

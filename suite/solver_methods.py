@@ -31,10 +31,10 @@ class SolverMethod:
 
 
 def _scipy(method):
-    def run(system, y0, t_eval, accuracy, atol):
+    def run(system, y0, t_eval, accuracy, atol, max_nfev=None):
         f = system.rhs()
         return solvers.solve_scipy(f, (float(t_eval[0]), float(t_eval[-1])), y0, system.params,
-                                   method=method, t_eval=t_eval, rtol=accuracy, atol=atol)
+                                   method=method, t_eval=t_eval, rtol=accuracy, atol=atol, max_nfev=max_nfev)
     return run
 
 
@@ -109,11 +109,14 @@ def applicable_methods(system: System) -> list[str]:
     return [name for name, m in SOLVER_METHODS.items() if m.applies(system)]
 
 
-def solve_system(system: System, method: str, t_eval, *, y0=None, accuracy=None, atol=1e-12):
+def solve_system(system: System, method: str, t_eval, *, y0=None, accuracy=None, atol=1e-12,
+                 max_nfev: int | None = None):
     """Integrate ``system`` with the named method; returns a :class:`solvers.Solution`.
 
     ``accuracy`` is the relative tolerance (adaptive methods, default 1e-9) or
     the step size (fixed-step methods, default a tenth of the output spacing).
+    ``max_nfev`` caps the right-hand-side calls of the scipy methods (a
+    failed solution past it); the compiled methods have a known step count.
     """
     if method not in SOLVER_METHODS:
         raise UnknownNameError("method", method, SOLVER_METHODS)
@@ -125,4 +128,6 @@ def solve_system(system: System, method: str, t_eval, *, y0=None, accuracy=None,
     y0 = np.asarray(system.default_y0() if y0 is None else y0, dtype=float)
     if accuracy is None:
         accuracy = 1e-9 if m.kind == "adaptive" else (float(t_eval[1] - t_eval[0]) / 10 if len(t_eval) > 1 else 1e-3)
+    if max_nfev is not None and method in solvers.SCIPY_METHODS:
+        return m.run(system, y0, t_eval, float(accuracy), float(atol), max_nfev=int(max_nfev))
     return m.run(system, y0, t_eval, float(accuracy), float(atol))

@@ -27,10 +27,15 @@ import pandas as pd
 
 from suite.solver_methods import SOLVER_METHODS, applicable_methods, solve_system
 
-__all__ = ["forecast_error", "solver_ladder", "speedup_at_equal_accuracy", "DEFAULT_LADDERS", "JIT_METHODS"]
+__all__ = ["forecast_error", "solver_ladder", "speedup_at_equal_accuracy", "DEFAULT_LADDERS", "JIT_METHODS",
+           "MAX_NFEV_PER_RUNG"]
 
 #: methods compiled by JAX (warmed up once per rung before timing)
 JIT_METHODS = frozenset({"rk4", "dopri5", "verlet", "yoshida4", "etdrk4"})
+
+#: right-hand-side calls per trajectory beyond which a scipy rung is "too costly" (about 1 s of
+#: Python calls per 200,000; common practice for a report that must finish, not a published value)
+MAX_NFEV_PER_RUNG = 200_000
 
 #: accuracy rungs: relative tolerances for adaptive methods; steps in units of the output spacing for fixed ones
 DEFAULT_LADDERS = {
@@ -58,8 +63,13 @@ def forecast_error(pred, ref, scale) -> float:
 
 
 def solver_ladder(system, starts, t_eval, reference, scale, *, methods=None, ladders=None,
-                  atol=1e-12) -> pd.DataFrame:
+                  atol=1e-12, max_nfev: int | None = MAX_NFEV_PER_RUNG) -> pd.DataFrame:
     """Run every applicable solver at every rung; one row per (method, accuracy).
+
+    Rungs go from loose to tight, so costs only grow: once a scipy rung needs
+    more than ``max_nfev`` right-hand-side calls for one trajectory (an
+    explicit method held back by stiffness, say), it is recorded with status
+    ``"too costly"`` and the method's tighter rungs are not run.
 
     Parameters
     ----------
@@ -68,6 +78,7 @@ def solver_ladder(system, starts, t_eval, reference, scale, *, methods=None, lad
     t_eval : array (n,), equally spaced, ``t_eval[0]`` the start
     reference : array (K, n, d), the reference trajectories from ``starts``
     scale : array (d,), per-variable attractor standard deviation
+    max_nfev : int or None, the cost cap per trajectory and rung (None: none)
 
     Returns
     -------
@@ -83,6 +94,8 @@ def solver_ladder(system, starts, t_eval, reference, scale, *, methods=None, lad
     for name in methods or applicable_methods(system):
         m = SOLVER_METHODS[name]
         for rung in ladders[m.kind]:
+            if rows and rows[-1]["method"] == name and rows[-1]["status"] == "too costly":
+                break
             accuracy = rung if m.kind == "adaptive" else rung * dt_out
             preds, seconds, nfev, status = [], 0.0, 0, "success"
             # warm-up (compilation) outside the timing, as for a learner's jitted rollout; on the full
@@ -91,14 +104,22 @@ def solver_ladder(system, starts, t_eval, reference, scale, *, methods=None, lad
                 solve_system(system, name, t_eval, y0=starts[0], accuracy=accuracy, atol=atol)
             for y0 in starts:
                 t0 = time.perf_counter()
-                sol = solve_system(system, name, t_eval, y0=y0, accuracy=accuracy, atol=atol)
+                sol = solve_system(system, name, t_eval, y0=y0, accuracy=accuracy, atol=atol, max_nfev=max_nfev)
                 seconds += time.perf_counter() - t0
                 nfev += int(sol.nfev)
+                if "(max_nfev)" in sol.message:
+                    status = "too costly"
+                    break
                 if not sol.success or np.asarray(sol.y).shape != (len(t_eval), system.dim):
                     status = "failed"
                     preds.append(np.full((len(t_eval), system.dim), np.nan))
                 else:
                     preds.append(np.asarray(sol.y))
+            if status == "too costly":
+                rows.append({"method": name, "kind": m.kind, "accuracy": accuracy, "error": float("inf"),
+                             "seconds": float("inf"), "seconds_per_lyapunov_time": float("inf"),
+                             "nfev": float(max_nfev), "status": status})
+                continue
             err = forecast_error(np.stack(preds), reference, scale) if status == "success" else float("inf")
             rows.append({
                 "method": name, "kind": m.kind, "accuracy": accuracy, "error": err,

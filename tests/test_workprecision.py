@@ -49,3 +49,21 @@ def test_ladder_error_falls_with_tolerance_on_lorenz63():
         errs = g.sort_values("accuracy")["error"].to_numpy()
         assert errs[0] < errs[-1]  # tighter tolerance / smaller step => smaller error
     assert (df["seconds_per_lyapunov_time"] > 0).all()
+
+
+def test_a_rung_over_the_cost_cap_stops_the_method_and_is_never_used():
+    """Rungs go loose to tight, so a scipy rung past ``max_nfev`` ends that method's ladder."""
+    import solvers
+
+    system = get_system("lorenz63")
+    starts = system.initial_conditions(1, seed=0)
+    t = np.arange(0, 101) * 0.01
+    ref = np.stack([reference_solution(system, float(t[-1]), y0=y0, dt_out=0.01).y for y0 in starts])
+    # DOP853 over one time unit: 134 calls at rtol 1e-3, 638 at 1e-10 (measured here)
+    df = solver_ladder(system, starts, t, ref, np.ones(3), methods=["DOP853", "rk4"],
+                       ladders={"adaptive": (1e-3, 1e-10, 1e-12), "fixed": (1.0,)}, max_nfev=400)
+    dop = df[df["method"] == "DOP853"]
+    assert list(dop["status"]) == ["success", "too costly"]  # 1e-12 not tried
+    assert np.isinf(dop["error"].iloc[1]) and (df[df["method"] == "rk4"]["status"] == "success").all()
+    sol = solvers.solve_scipy(system.rhs(), (0.0, 1.0), starts[0], system.params, rtol=1e-10, max_nfev=400)
+    assert not sol.success and "max_nfev" in sol.message and sol.nfev == 0
