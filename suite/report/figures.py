@@ -33,7 +33,7 @@ __all__ = ["error_vs_horizon", "sweep_curve", "work_precision", "critical_differ
 
 def _legend(ax, n: int):
     if n > 6:  # many series: outside the axes, never over the data
-        ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)
+        ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False, fontsize=7)
     else:
         ax.legend(loc="best", framealpha=0.85)
 
@@ -76,11 +76,15 @@ def sweep_curve(points: pd.DataFrame, system: str, task: str, metric: str, axis:
     fig, ax = new_figure()
     learners = learner_order or sorted(points["learner"].unique())
     all_levels = sorted(points[axis].unique()) if levels is None else sorted(levels)
+    single = []
     for i, name in enumerate(learners):
         g = points[points["learner"] == name]
         if g.empty:
             continue
         stat = g.groupby(axis)["headline"].agg(["median", "min", "max", "count"]).sort_index()
+        if len(stat) == 1 and len(all_levels) > 1:  # one point is no curve: named under the axes instead
+            single.append(f"{name} ({stat.index[0]:g})")
+            continue
         x = stat.index.to_numpy(float)
         st = series_style(i)
         missing = [v for v in all_levels if v not in set(x)]
@@ -112,6 +116,9 @@ def sweep_curve(points: pd.DataFrame, system: str, task: str, metric: str, axis:
     ax.set_title(f"{system} · {task}: {what} curve\n" + (f"{subtitle}; " if subtitle else "")
                  + "median over seeds, band min–max")
     _legend(ax, len(ax.get_legend_handles_labels()[0]))
+    if single:
+        ax.text(0.0, -0.16, "results at one level only, not drawn: " + ", ".join(single),
+                transform=ax.transAxes, fontsize=7, va="top", wrap=True)
     return fig
 
 

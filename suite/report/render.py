@@ -54,7 +54,7 @@ def _save(fig, tmp: Path, stem: str, made: dict) -> None:
     import matplotlib.pyplot as plt
 
     for ext in ("png", "svg"):
-        fig.savefig(tmp / f"{stem}.{ext}")
+        fig.savefig(tmp / f"{stem}.{ext}", bbox_inches="tight")  # outside legends and notes included
         made[f"{stem}.{ext}"] = tmp / f"{stem}.{ext}"
     plt.close(fig)
 
