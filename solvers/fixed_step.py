@@ -10,7 +10,7 @@ import numpy as np
 from jax import lax
 
 from ._compile import run_compiled
-from .result import Solution
+from .result import Solution, finite_status
 from .tableau import RK4, ButcherTableau
 
 __all__ = ["integrate_fixed", "rk_scan", "rk_step", "strided_loop"]
@@ -192,14 +192,7 @@ def integrate_fixed(f, y0, t0, dt, n_steps, params, *, tableau: ButcherTableau =
                                                             np.int64(save_every)))
     ys = np.asarray(ys)
     t = float(t0) + dt * save_every * np.arange(n_out)
-    status, message = "success", ""
-    finite = np.isfinite(ys).all(axis=-1)
-    if not finite.all():
-        first = int(np.argmin(finite.all(axis=0) if batched else finite))
-        bad = int((~finite.all(axis=-1)).sum()) if batched else 1
-        status = "failed"
-        message = (f"non-finite state at t={t[first]:g}" +
-                   (f" in {bad} of {y0.shape[0]} trajectories" if batched else ""))
+    status, message = finite_status(ys, t, batched)
     return Solution(t=t, y=ys, method=f"fixed-{tableau.name}", nfev=n_steps * tableau.stages,
                     n_steps=n_steps, seconds=seconds, status=status, message=message,
                     compile_seconds=compile_s, extra={"dt": dt, "save_every": save_every})

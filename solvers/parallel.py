@@ -19,7 +19,7 @@ from jax.sharding import Mesh, PartitionSpec
 
 from ._compile import run_compiled
 from .fixed_step import _n_saved, rk_step, strided_loop
-from .result import Solution
+from .result import Solution, finite_status
 from .tableau import RK4, ButcherTableau
 from .taylor import _integrate as _integrate_taylor
 
@@ -85,13 +85,7 @@ def integrate_fixed_sharded(f, y0, t0, dt, n_steps, params, *, tableau: ButcherT
     ys, compile_s, seconds = run_compiled(key, fn, params, (y0p, np.float64(t0), np.float64(dt)))
     ys = np.asarray(ys)[:batch]
     t = float(t0) + dt * save_every * np.arange(n_out)
-    finite = np.isfinite(ys).all(axis=-1)
-    status, message = "success", ""
-    if not finite.all():
-        first = int(np.argmin(finite.all(axis=0)))
-        status = "failed"
-        message = (f"non-finite state at t={t[first]:g} in {int((~finite.all(axis=-1)).sum())} "
-                   f"of {batch} trajectories")
+    status, message = finite_status(ys, t, True)
     return Solution(t=t, y=ys, method=f"fixed-{tableau.name}-sharded", nfev=n_steps * tableau.stages,
                     n_steps=n_steps, seconds=seconds, status=status, message=message,
                     compile_seconds=compile_s, extra={"dt": dt, "save_every": save_every, "devices": n_dev})

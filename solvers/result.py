@@ -6,7 +6,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["Solution"]
+__all__ = ["Solution", "finite_status"]
 
 
 @dataclass(frozen=True)
@@ -52,3 +52,18 @@ class Solution:
     @property
     def success(self) -> bool:
         return self.status == "success"
+
+
+def finite_status(ys, t, batched: bool) -> tuple[str, str]:
+    """``("success", "")``, or ``("failed", message)`` naming the first time with a non-finite state.
+
+    ``ys`` has shape (n, d), or (B, n, d) when ``batched``; ``t`` the n output times.
+    """
+    finite = np.isfinite(np.asarray(ys)).all(axis=-1)
+    if finite.all():
+        return "success", ""
+    first = int(np.argmin(finite.all(axis=0) if batched else finite))
+    message = f"non-finite state at t={t[first]:g}"
+    if batched:
+        message += f" in {int((~finite.all(axis=-1)).sum())} of {finite.shape[0]} trajectories"
+    return "failed", message

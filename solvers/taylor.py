@@ -30,7 +30,7 @@ import numpy as np
 from jax import lax
 
 from ._compile import run_compiled
-from .result import Solution
+from .result import Solution, finite_status
 from .taylor_series import Series, TaylorUnsupportedError, as_series, stack_of
 
 __all__ = ["TaylorUnsupportedError", "integrate_taylor", "jorba_zou_order", "taylor_coefficients", "taylor_step"]
@@ -335,15 +335,8 @@ def _integrate(f, y0, t_eval, params, *, order=None, dt=None, tol=None, safety=0
     if batched:
         ys, steps = ys[:y0.shape[0]], steps[:y0.shape[0]]
     n_steps = int(np.max(steps))
-    status, message = "success", ""
-    finite = np.isfinite(ys).all(axis=-1)
-    if not finite.all():
-        first = int(np.argmin(finite.all(axis=0) if batched else finite))
-        bad = int((~finite.all(axis=-1)).sum()) if batched else 1
-        status = "failed"
-        message = f"non-finite state at t={t_eval[first]:g}" + (f" in {bad} of {y0.shape[0]} trajectories"
-                                                                  if batched else "")
-    elif mode == "adaptive" and n_steps >= max_steps:
+    status, message = finite_status(ys, t_eval, batched)
+    if status == "success" and mode == "adaptive" and n_steps >= max_steps:
         status = "failed"
         message = f"max_steps ({max_steps}) reached before t={t_eval[-1]:g}"
     extra = {"order": order, "devices": n_dev}

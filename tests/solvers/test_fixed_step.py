@@ -134,3 +134,15 @@ def test_fresh_closures_of_the_same_field_share_compiled_code():
     other = integrate_fixed(make_rhs(2.0), [1.0], 0.0, 0.1, 10, {"k": 1.0})  # different closure value
     assert len(traces) > n
     np.testing.assert_allclose(other.y[-1, 0], np.exp(-2.0), rtol=1e-4)  # closed form; RK4 error 10 x 0.2^5/120 ~ 3e-5
+
+
+def test_blow_up_is_a_failed_status_naming_the_first_bad_time_and_count():
+    """y' = y^2, y(0) = 1 is 1/(1 - t) (closed form): infinite at t = 1, so RK4 overflows soon after."""
+    from solvers import integrate_fixed
+
+    f = lambda t, y, p: y ** 2  # noqa: E731
+    sol = integrate_fixed(f, np.array([[1.0], [0.1]]), 0.0, 0.01, 300, {}, save_every=50)
+    assert not sol.success
+    # 1/(1 - t) passes every bound past t = 1; the second start, 1/(10 - t), stays finite to t = 3
+    assert sol.message.startswith("non-finite state at t=") and "in 1 of 2 trajectories" in sol.message
+    assert 1.0 <= float(sol.message.split("t=")[1].split()[0]) <= 3.0
