@@ -146,3 +146,19 @@ def _markdown(name, table, info, notes, quick) -> str:
 
 def fmt_load(la) -> str:
     return "/".join(f"{x:.1f}" for x in la) if la else "?"
+
+
+def lorenz63_samples(n: int, dt: float, *, seed: int, tol: float):
+    """``(t, y, system)``: ``n`` Lorenz-63 states ``dt`` apart from a start on the attractor (scipy DOP853)."""
+    import numpy as np
+    from scipy.integrate import solve_ivp
+
+    from suite.systems import get_system
+
+    s = get_system("lorenz63")
+    y0 = s.initial_conditions(1, seed=seed)[0]
+    f, p = s.rhs(), s.params
+    t = dt * np.arange(n)
+    sol = solve_ivp(lambda t_, y: f(t_, y, p), (0.0, t[-1]), y0, method="DOP853", t_eval=t, rtol=tol, atol=tol)
+    assert sol.success, sol.message
+    return t, sol.y.T, s

@@ -27,7 +27,7 @@ import time  # noqa: E402
 from pathlib import Path  # noqa: E402
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from _common import machine, write_results  # noqa: E402
+from _common import lorenz63_samples, machine, write_results  # noqa: E402
 
 import numpy as np  # noqa: E402
 
@@ -39,17 +39,7 @@ HORIZON = 25.0
 
 
 def trajectory(n_samples: int):
-    from scipy.integrate import solve_ivp
-
-    from suite.systems import get_system
-
-    s = get_system("lorenz63")
-    y0 = s.initial_conditions(1, seed=0)[0]
-    f, p = s.rhs(), s.params
-    t = DT * np.arange(n_samples)
-    sol = solve_ivp(lambda t_, y: f(t_, y, p), (0.0, t[-1]), y0, method="DOP853", t_eval=t, rtol=1e-10, atol=1e-10)
-    assert sol.success, sol.message
-    return t, sol.y.T
+    return lorenz63_samples(n_samples, DT, seed=0, tol=1e-10)[:2]
 
 
 def segments(y, start, n, stride):

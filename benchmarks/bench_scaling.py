@@ -31,7 +31,7 @@ import time  # noqa: E402
 from pathlib import Path  # noqa: E402
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from _common import machine, write_results  # noqa: E402
+from _common import lorenz63_samples, machine, write_results  # noqa: E402
 
 import numpy as np  # noqa: E402
 
@@ -46,17 +46,7 @@ def slope(x, y) -> float:
 
 
 def lorenz_samples(n: int):
-    from scipy.integrate import solve_ivp
-
-    from suite.systems import get_system
-
-    s = get_system("lorenz63")
-    y0 = s.initial_conditions(1, seed=1)[0]
-    f, p = s.rhs(), s.params
-    t = DT * np.arange(n)
-    sol = solve_ivp(lambda t_, y: f(t_, y, p), (0.0, t[-1]), y0, method="DOP853", t_eval=t, rtol=1e-9, atol=1e-9)
-    assert sol.success, sol.message
-    return t, sol.y.T, s
+    return lorenz63_samples(n, DT, seed=1, tol=1e-9)
 
 
 def grid_scaling(sizes, table, tmp):
