@@ -126,6 +126,34 @@ def test_cells_per_worker_is_checked_and_passed_to_both_executors():
         make_executor("local", cells_per_worker=-1)
 
 
+def _dask_worker_settings():
+    import dask
+
+    return {k: dask.config.get(k) for k in ("distributed.worker.profile.enabled",
+                                            "distributed.admin.tick.interval")}
+
+
+def test_the_dask_cluster_we_start_has_quiet_housekeeping_in_its_worker_processes():
+    # The settings must reach the spawned worker processes, not only this one.
+    import dask
+
+    from suite.executors.dask import QUIET_CLUSTER_CONFIG
+
+    before = dask.config.get("distributed.worker.profile.enabled")
+    ex = make_executor("dask", workers=1)
+    client, cluster = ex._client()
+    try:
+        got = list(client.run(_dask_worker_settings).values())
+        saturation = client.run_on_scheduler(lambda dask_scheduler: dask_scheduler.WORKER_SATURATION)
+    finally:
+        client.close()
+        cluster.close()
+    assert got == [{"distributed.worker.profile.enabled": False,
+                    "distributed.admin.tick.interval": QUIET_CLUSTER_CONFIG["distributed.admin.tick.interval"]}]
+    assert saturation == 1.0
+    assert dask.config.get("distributed.worker.profile.enabled") == before  # this process keeps its own settings
+
+
 def test_cli_refuses_a_negative_cells_per_worker(tmp_path, capsys):
     from suite.cli import main
 
