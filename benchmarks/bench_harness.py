@@ -15,7 +15,9 @@ task options, one cell per seed) is run
 Overhead per cell = (run wall seconds − baseline wall seconds) / cells for
 one worker. Then a grid of 20 non-trivial cells (the same learner with
 longer options and the on-disk cache off, so that every cell integrates its
-references) is run on ``dask`` with 1 and with 2 workers: the speed-up.
+references) is run on ``local`` and on ``dask`` with 1 and with 2 workers:
+the speed-up, and the local executor's speed-up on the same cells as the
+yardstick of what the machine allows.
 
 The on-disk cache (:mod:`suite.cache`) is pointed at a fresh folder and
 warmed by the baseline loop for the trivial grid, so every configuration
@@ -84,7 +86,8 @@ def run(grid, executor: str, workers: int, tmp: str) -> tuple[float, object]:
     return wall, summary
 
 
-def main(quick: bool, cells: int | None, heavy_cells: int | None, configs, out: str = "harness") -> None:
+def main(quick: bool, cells: int | None, heavy_cells: int | None, configs, out: str = "harness",
+         heavy_executors=("local", "dask")) -> None:
     n_trivial = cells or (20 if quick else 200)
     n_heavy = 4 if quick else 20
     n_heavy = n_heavy if heavy_cells is None else heavy_cells
@@ -117,26 +120,32 @@ def main(quick: bool, cells: int | None, heavy_cells: int | None, configs, out: 
         os.environ["LYAPBENCH_CACHE"] = "off"  # every heavy cell integrates its own references
         heavy = make_grid(max(n_heavy, 1), NONTRIVIAL_OPTIONS)
         walls = {}
-        for workers in ((1, 2) if n_heavy else ()):
-            walls[workers], _ = run(heavy, "dask", workers, tmp)
-            table.append({"grid": f"{n_heavy} non-trivial, cache off", "how": "run_grid dask", "workers": workers,
-                          "wall_s": walls[workers], "s_per_cell": walls[workers] / n_heavy})
-            print(table[-1], flush=True)
+        for executor in (heavy_executors if n_heavy else ()):
+            for workers in (1, 2):
+                walls[executor, workers], _ = run(heavy, executor, workers, tmp)
+                table.append({"grid": f"{n_heavy} non-trivial, cache off", "how": f"run_grid {executor}",
+                              "workers": workers, "wall_s": walls[executor, workers],
+                              "s_per_cell": walls[executor, workers] / n_heavy})
+                print(table[-1], flush=True)
     ovh = {r["how"] + f" x{r['workers']}": r["overhead_s_per_cell"] for r in table if "overhead_s_per_cell" in r
            and r["how"] != "in-process loop (baseline)"}
     ovh_cpu = {r["how"] + f" x{r['workers']}": r["overhead_cpu_s_per_cell"] for r in table
                if r.get("overhead_cpu_s_per_cell") is not None and r["how"] != "in-process loop (baseline)"}
-    speed = walls[1] / walls[2] if walls else float("nan")
+    def speedup(executor):
+        return walls[executor, 1] / walls[executor, 2] if (executor, 2) in walls else float("nan")
+
+    speed, local_speed = speedup("dask"), speedup("local")
     targets = {"overhead_le_0.2_s_per_cell": {k: v <= 0.2 for k, v in ovh.items()}, "overhead_s_per_cell": ovh,
                "overhead_cpu_s_per_cell": ovh_cpu,
-               "dask_2_vs_1_worker_speedup": speed, "dask_speedup_ge_1.7": speed >= 1.7}
+               "dask_2_vs_1_worker_speedup": speed, "dask_speedup_ge_1.7": speed >= 1.7,
+               "local_2_vs_1_worker_speedup_same_cells": local_speed}
     notes = ("Overhead per cell = (wall x workers - in-process baseline wall) / cells: worker-seconds the harness "
              "spends beyond the cells' own work (process start, imports, JAX initialisation, store writes, "
              "scheduling). Trivial cell: persistence, forecast, options " + repr(TRIVIAL_OPTIONS) + ". "
              "Non-trivial cell: options " + repr(NONTRIVIAL_OPTIONS) + ", cache off. "
              "overhead_cpu_s_per_cell: the same from CPU seconds of this process and its reaped children (robust to "
              "other jobs' load; local executor only, Dask's workers are not reaped by this process). "
-             f"Dask 2 vs 1 worker: {speed:.2f}x. With the load average above the core count, a "
+             f"Dask 2 vs 1 worker: {speed:.2f}x; the local executor on the same cells: {local_speed:.2f}x. With the load average above the core count, a "
              "second worker gets only part of a second core.")
     write_results(out, {"machine": info, "targets": targets}, table, notes, quick)
 
@@ -148,6 +157,9 @@ if __name__ == "__main__":
     ap.add_argument("--heavy-cells", type=int, help="number of non-trivial cells for the Dask speed-up (0: skip)")
     ap.add_argument("--configs", nargs="+", default=["local:1", "local:2", "dask:1", "dask:2"],
                     help="executor:workers pairs to time on the trivial grid")
+    ap.add_argument("--heavy-executors", nargs="+", default=["local", "dask"], choices=["local", "dask"],
+                    help="executors timed with 1 and 2 workers on the non-trivial grid (default: both)")
     ap.add_argument("--out", default="harness", help="result name: results/perf/<out>.json (default harness)")
     a = ap.parse_args()
-    main(a.quick, a.cells, a.heavy_cells, [(c.split(":")[0], int(c.split(":")[1])) for c in a.configs], a.out)
+    main(a.quick, a.cells, a.heavy_cells, [(c.split(":")[0], int(c.split(":")[1])) for c in a.configs], a.out,
+         tuple(a.heavy_executors))

@@ -136,6 +136,7 @@ def _dask_worker_settings():
 def test_the_dask_cluster_we_start_has_quiet_housekeeping_in_its_worker_processes():
     # The settings must reach the spawned worker processes, not only this one.
     import dask
+    import distributed  # noqa: F401  (registers Dask's distributed defaults in this process)
 
     from suite.executors.dask import QUIET_CLUSTER_CONFIG
 
