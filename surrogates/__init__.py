@@ -17,6 +17,7 @@ from .errors import (
     NotApplicableError,
     NotFittedError,
     OverBudgetError,
+    TooFewSamplesError,
 )
 from .registry import (
     LearnerClashError,
@@ -43,6 +44,7 @@ __all__ = [
     "NotApplicableError",
     "NotFittedError",
     "OverBudgetError",
+    "TooFewSamplesError",
     "Physics",
     "TrainingData",
     "Trajectory",

@@ -7,7 +7,7 @@ from scipy.spatial import cKDTree
 
 from ._delay import delay_vectors, on_output_grid, output_spacing, start_delays
 from .base import Capabilities, Learner
-from .errors import InvalidDataError
+from .errors import InvalidDataError, TooFewSamplesError
 
 __all__ = ["Analogues"]
 
@@ -70,7 +70,7 @@ class Analogues(Learner):
                 succ.append(tr.y[q:])
         n_lib = sum(len(a) for a in lib)
         if n_lib < k:
-            raise InvalidDataError(
+            raise TooFewSamplesError(
                 f"Analogues with delays={q}, n_neighbors={k} needs at least {q + k} samples in a trajectory")
         self.dt_ = float(dts[0])
         self.scale_ = scale

@@ -29,7 +29,7 @@ from typing import ClassVar
 import numpy as np
 
 from .data import PHYSICS_LEVELS, TASKS, Budget, Physics, TrainingData
-from .errors import InvalidDataError, NotApplicableError, NotFittedError
+from .errors import InvalidDataError, NotApplicableError, NotFittedError, TooFewSamplesError
 
 __all__ = ["Capabilities", "Learner"]
 
@@ -153,7 +153,7 @@ class Learner:
             if not (np.all(np.isfinite(tr.t)) and np.all(np.isfinite(tr.y))):
                 raise InvalidDataError("training data contain NaN or infinite values")
         if data.n_samples < self.capabilities.min_samples:
-            raise InvalidDataError(
+            raise TooFewSamplesError(
                 f"{type(self).__name__} needs at least {self.capabilities.min_samples} samples, got {data.n_samples}")
         if self.capabilities.needs_regular_sampling and not all(tr.regular for tr in data.trajectories):
             raise InvalidDataError(f"{type(self).__name__} needs equally spaced samples")

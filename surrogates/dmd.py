@@ -6,7 +6,7 @@ import numpy as np
 
 from ._delay import delay_vectors, on_output_grid, output_spacing, start_delays
 from .base import Capabilities, Learner
-from .errors import DivergedError, InvalidDataError
+from .errors import DivergedError, InvalidDataError, TooFewSamplesError
 
 __all__ = ["HankelDMD"]
 
@@ -83,7 +83,7 @@ class HankelDMD(Learner):
             raise ValueError(f"HankelDMD: delays must be >= 1, got {self.delays!r}")
         dts = np.array([tr.dt for tr in data.trajectories if tr.t.size > 1])
         if dts.size == 0:
-            raise InvalidDataError("HankelDMD needs a trajectory with at least 2 samples")
+            raise TooFewSamplesError("HankelDMD needs a trajectory with at least 2 samples")
         dt = float(dts[0])
         if not np.allclose(dts, dt, rtol=1e-6, atol=0.0):
             raise InvalidDataError("HankelDMD needs the same sample spacing in every trajectory")
@@ -96,7 +96,7 @@ class HankelDMD(Learner):
                 X.append(H[:-1])
                 Xp.append(H[1:])
         if not X:
-            raise InvalidDataError(f"HankelDMD with delays={q} needs a trajectory of at least {q + 1} samples")
+            raise TooFewSamplesError(f"HankelDMD with delays={q} needs a trajectory of at least {q + 1} samples")
         X = np.concatenate(X).T
         Xp = np.concatenate(Xp).T
         U, S, Vh = np.linalg.svd(X, full_matrices=False)

@@ -9,6 +9,7 @@ __all__ = [
     "OverBudgetError",
     "NotFittedError",
     "InvalidDataError",
+    "TooFewSamplesError",
 ]
 
 
@@ -42,3 +43,16 @@ class NotFittedError(LearnerError, AttributeError):
 
 class InvalidDataError(LearnerError, ValueError):
     """Training data the learner cannot use: wrong dimension, NaN, too few samples."""
+
+
+class TooFewSamplesError(InvalidDataError):
+    """Fewer training samples than the learner needs with its settings on this system.
+
+    Not a fault of the learner: the cell asks for something it cannot be
+    (a 36-term SINDy library fitted from 20 samples, 8 delays from 9
+    samples), so the harness records it as ``not_applicable`` with this
+    message, as it does for the ``min_samples`` check made before any data
+    are built.
+    """
+
+    status = "not_applicable"

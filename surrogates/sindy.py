@@ -10,7 +10,7 @@ from scipy.optimize import least_squares
 
 from .base import Capabilities, Learner
 from .data import Budget, BudgetClock, Physics, TrainingData
-from .errors import DivergedError, InvalidDataError, NotApplicableError, OverBudgetError
+from .errors import DivergedError, InvalidDataError, NotApplicableError, OverBudgetError, TooFewSamplesError
 
 __all__ = ["SINDy"]
 
@@ -260,7 +260,7 @@ class SINDy(Learner):
         from scipy.interpolate import make_smoothing_spline
 
         if t.size < 5:
-            raise InvalidDataError("a smoothing-spline derivative needs at least 5 samples per trajectory")
+            raise TooFewSamplesError("a smoothing-spline derivative needs at least 5 samples per trajectory")
         smooth = np.empty_like(y)
         dydt = np.empty_like(y)
         for i in range(y.shape[1]):
@@ -289,7 +289,7 @@ class SINDy(Learner):
             dxs.append(dx)
         n = sum(t.size for t in ts)
         if n < len(lib):
-            raise InvalidDataError(
+            raise TooFewSamplesError(
                 f"SINDy needs at least {len(lib)} samples (one per library term) in trajectories "
                 f"of 3 or more samples, got {n}")
         t_all, x_all, dx_all = np.concatenate(ts), np.concatenate(xs), np.concatenate(dxs)
