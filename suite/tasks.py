@@ -357,20 +357,26 @@ def forecast_problem(ctx: TaskContext, dt: float | None = None, n_starts: int | 
     starts = initial_conditions(system, int(o["n_starts"]), ctx.streams.tests)
     if n_starts is not None:
         starts = starts[:max(1, int(n_starts))]
+
+    def n_out(bound: float) -> int:
+        return int(np.floor(min(horizon, bound) / dt * (1 + 1e-9) + 1e-9)) + 1
+
     histories, truths, avail = [], [], []
     for s in starts:
         t, y, h = reference_with_horizon(system, s, hist_time + horizon, dt)
         histories.append(y[:m])
         truths.append(y[m - 1:])
         avail.append(h - hist_time)
+        if n_out(avail[-1]) < 3:  # a property of this sampling step, not a fault of the learner
+            # decided at the first such start (the window is the shortest over all starts): with
+            # a long history each reference is a long integration, and the rest would be wasted
+            raise NotApplicableError(
+                f"at output step {dt:g} the {m}-sample history spans {hist_time:.3g} time units of "
+                f"{system.name} and leaves {max(avail[-1], 0.0):.3g} of the reference's trusted horizon "
+                f"for the forecast: fewer than 3 output times to score")
     ref_bound = float(min(avail))
     h_eff = min(horizon, ref_bound)
-    n = int(np.floor(h_eff / dt * (1 + 1e-9) + 1e-9)) + 1
-    if n < 3:  # a property of this sampling step, not a fault of the learner
-        raise NotApplicableError(
-            f"at output step {dt:g} the {m}-sample history spans {hist_time:.3g} time units of "
-            f"{system.name} and leaves {max(ref_bound, 0.0):.3g} of the reference's trusted horizon "
-            f"for the forecast: fewer than 3 output times to score")
+    n = n_out(ref_bound)
     truth = np.stack([tr[:n] for tr in truths])
     return {"history": np.stack(histories), "y0s": truth[:, 0], "t_out": dt * np.arange(n),
             "t_start": hist_time, "truth": truth, "reference_horizon": ref_bound / tu,

@@ -311,6 +311,15 @@ def test_too_few_samples_is_not_applicable_before_any_data():
     assert "data_seconds" not in o.cost
 
 
+def test_a_library_larger_than_the_data_is_not_applicable_not_a_failure():
+    # SINDy's default library on Lorenz-63 (degree 2 in 3 variables) has 10 terms; 1 Lyapunov time
+    # at fraction 0.05 leaves 6 samples: more unknowns than equations, a design limit, not a fault.
+    o = run_cell(spec("forecast", "sindy", task_options=TINY_FORECAST, fraction=0.05))
+    assert o.status == "not_applicable"
+    assert o.error.startswith("SINDy needs at least 10 samples (one per library term)"), o.error
+    assert "traceback" not in o.info
+
+
 def test_regular_sampling_for_learners_that_need_it():
     RegularLearner.seen.clear()
     o = run_cell(spec("forecast", f"{HERE}:RegularLearner", fraction=0.25, task_options=TINY_FORECAST))
@@ -322,15 +331,25 @@ def test_regular_sampling_for_learners_that_need_it():
     assert hist_shape == (1, 2, 3)
 
 
-def test_history_longer_than_the_trusted_reference_is_not_applicable():
+def test_history_longer_than_the_trusted_reference_is_not_applicable(monkeypatch):
     """At stride 25 (output step 0.25) a 200-sample history spans 49.75 time units of Lorenz-63, past
     the horizon of the 1e-12/1e-10 reference pair (a 1e-12 difference grows like e^(0.906 t), exponent
     from Sprott 2003, and reaches the 1e-2 threshold after about 25 time units): no forecast window,
     a property of the sampling, not a fault of the learner."""
-    opts = dict(TINY_FORECAST, train_lyapunov_times=60.0, history_steps=200)
+    from suite.datasets import reference_with_horizon
+
+    calls = []
+
+    def counted(*a, **k):
+        calls.append(a[2])
+        return reference_with_horizon(*a, **k)
+
+    monkeypatch.setattr(T, "reference_with_horizon", counted)
+    opts = dict(TINY_FORECAST, train_lyapunov_times=60.0, history_steps=200, n_starts=3)
     o = run_cell(spec("forecast", f"{HERE}:RegularLearner", fraction=0.04, task_options=opts))
     assert o.status == "not_applicable", (o.status, o.error)
     assert "200-sample history spans" in o.error and "fewer than 3 output times" in o.error
+    assert len(calls) == 1  # decided at the first of the 3 test starts: no wasted integrations
 
 
 def test_energy_drift_on_the_pendulum():
