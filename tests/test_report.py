@@ -239,3 +239,13 @@ def test_cli_writes_a_report(tmp_path, timeout_store, capsys):
     assert (out / "summary.md").exists() and (out / "tables.csv").exists()
     assert not (out / "sparsity_old_forecast.png").exists()
     assert not list(out.glob(".*"))  # no temporary folder left behind
+
+
+def test_fourteen_learners_get_fourteen_distinguishable_scatter_styles():
+    # one learner per series in the work-precision scatter, where there are no lines to tell
+    # a repeated colour apart: face and edge colour together must differ for every pair
+    from suite.report.style import series_style
+
+    styles = [series_style(i) for i in range(14)]
+    assert len({(s["facecolor"], s["edgecolor"]) for s in styles}) == 14
+    assert len({(s["color"], s["linestyle"]) for s in styles}) == 14  # and the lines of the curve figures

@@ -52,7 +52,7 @@ def error_vs_horizon(curves: pd.DataFrame, system: str, *, threshold: float = 0.
         w = w.where(w > 0)  # an exact zero (the start state itself) has no place on a log axis
         st = series_style(i)
         ax.plot(h, w.median(axis=1), color=st["color"], linestyle=st["linestyle"], marker=st["marker"],
-                markersize=3, label=f"{name} ({w.shape[1]} seed{'s' if w.shape[1] != 1 else ''})")
+                markerfacecolor=st["facecolor"], markersize=3, label=f"{name} ({w.shape[1]} seed{'s' if w.shape[1] != 1 else ''})")
         if w.shape[1] > 1:
             ax.fill_between(h, w.min(axis=1), w.max(axis=1), color=st["color"], alpha=0.2, linewidth=0)
     ax.axhline(threshold, color=THRESHOLD_COLOUR, linestyle=":", linewidth=1.2)
@@ -90,7 +90,7 @@ def sweep_curve(points: pd.DataFrame, system: str, task: str, metric: str, axis:
         missing = [v for v in all_levels if v not in set(x)]
         label = name + (f" (no result at {', '.join(f'{v:g}' for v in missing)})" if missing else "")
         ax.plot(x, stat["median"], color=st["color"], linestyle=st["linestyle"], marker=st["marker"],
-                markersize=5, label=label)
+                markerfacecolor=st["facecolor"], markersize=5, label=label)
         if (stat["count"] > 1).any():
             ax.fill_between(x, stat["min"], stat["max"], color=st["color"], alpha=0.2, linewidth=0)
     if axis == "fraction":
@@ -147,9 +147,9 @@ def work_precision(ladder: pd.DataFrame, learners: pd.DataFrame, title: str, *, 
             h = g[g["setting"] == setting] if many else g
             if h.empty:
                 continue
-            ax.scatter(h["nrmse_mean"], h["inference_seconds_per_lyapunov_time"], color=st["color"],
-                       marker=MARKERS[j % len(MARKERS)] if many else st["marker"], s=45, edgecolors="black",
-                       linewidths=0.5, zorder=3, label=f"learner {name}" if j == 0 or not many else None)
+            ax.scatter(h["nrmse_mean"], h["inference_seconds_per_lyapunov_time"], facecolors=st["facecolor"],
+                       marker=MARKERS[j % len(MARKERS)] if many else st["marker"], s=45,
+                       edgecolors=st["edgecolor"], linewidths=0.5 if st["facecolor"] != "white" else 1.2, zorder=3, label=f"learner {name}" if j == 0 or not many else None)
     if many:  # markers say the data setting, colours the learner
         for j, setting in enumerate(settings):
             ax.scatter([], [], color="white", edgecolors="black", marker=MARKERS[j % len(MARKERS)], s=45,

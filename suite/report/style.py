@@ -2,7 +2,8 @@
 
 The palette is Okabe and Ito's eight colours, distinguishable under the
 common forms of colour-vision deficiency; markers and line styles repeat
-the distinction for grey-scale prints and for more than eight series.
+the distinction for grey-scale prints, and beyond seven series the colours
+come back with another line style and hollow markers.
 
 References
 ----------
@@ -31,9 +32,20 @@ _RC = {"font.size": 10, "axes.titlesize": 11, "axes.labelsize": 10, "legend.font
 
 
 def series_style(i: int) -> dict:
-    """Colour, marker and line style of the ``i``-th series (stable across figures)."""
-    return {"color": PALETTE[i % (len(PALETTE) - 1)], "marker": MARKERS[i % len(MARKERS)],
-            "linestyle": LINESTYLES[(i // (len(PALETTE) - 1)) % len(LINESTYLES)]}
+    """Colour, marker, line style and marker fill of the ``i``-th series (stable across figures).
+
+    The seven colours repeat from the eighth series on; a repeat differs in
+    line style and is drawn with hollow markers (white face, coloured edge),
+    so that two series of one colour stay apart in scatter plots too, where
+    there are no lines (``facecolor`` and ``edgecolor``).
+    """
+    colours = len(PALETTE) - 1
+    cycle = i // colours
+    color = PALETTE[i % colours]
+    return {"color": color, "marker": MARKERS[i % len(MARKERS)],
+            "linestyle": LINESTYLES[cycle % len(LINESTYLES)],
+            "facecolor": color if cycle % 2 == 0 else "white",
+            "edgecolor": "black" if cycle % 2 == 0 else color}
 
 
 def new_figure(width: float = 6.4, height: float = 4.2):
