@@ -226,7 +226,8 @@ class TaskSetup:
 
     ``evaluate(learner) -> (rows, cost, info)``; cost holds
     ``inference_seconds`` and ``inference_seconds_per_lyapunov_time`` where
-    the task runs inference.
+    the task runs inference (forecast: timed on a second rollout, after the
+    first has paid compilation).
     """
 
     data: object
@@ -395,8 +396,12 @@ def _setup_forecast(ctx: TaskContext) -> TaskSetup:
 
     def evaluate(learner):
         k = y0s.shape[0]
-        t0 = time.perf_counter()
+        # scored on the first rollout, timed on a second: the first pays one-off costs (JIT
+        # compilation of the rollout, up to 85 % of a neural ODE's first call) that a user pays
+        # once per model, not per query; the solver ladder is warmed up likewise
         pred = learner.rollout(y0s, t_out, history)
+        t0 = time.perf_counter()
+        learner.rollout(y0s, t_out, history)
         sec = time.perf_counter() - t0
         pred = _checked(pred, truth.shape, "rollout output")
         err = M.nrmse_curve(pred, truth, ctx.scale)  # (K, n)
