@@ -64,7 +64,7 @@ class _Progress:
     def __init__(self, total: int, mode, stream=None):
         self.stream = stream or sys.stderr
         self.total = total
-        self.done = self.failed = 0
+        self.done = self.not_ok = 0  # not ok: failed, diverged or timeout (not applicable is a reason)
         self.t0 = time.monotonic()
         if mode is None:
             mode = "bar" if getattr(self.stream, "isatty", lambda: False)() else "lines"
@@ -78,13 +78,13 @@ class _Progress:
             self._postfix()
 
     def _postfix(self):
-        self.bar.set_postfix(done=self.done, failed=self.failed, remaining=self.total - self.done,
+        self.bar.set_postfix(done=self.done, not_ok=self.not_ok, remaining=self.total - self.done,
                              refresh=True)
 
     def update(self, result) -> None:
         self.done += 1
-        if result.outcome.status not in ("ok", "not_applicable"):  # failed, diverged, timeout
-            self.failed += 1
+        if result.outcome.status not in ("ok", "not_applicable"):
+            self.not_ok += 1
         if self.bar is not None:
             self.bar.update(1)
             self._postfix()
@@ -96,7 +96,7 @@ class _Progress:
             err = f" {result.outcome.error.splitlines()[0][:120]}" if result.outcome.error else ""
             print(f"[{self.done}/{self.total}] {result.outcome.status:<14} {s.system} {s.task} {s.learner} "
                   f"fraction={s.fraction:g} noise={s.noise:g} physics={s.physics} seed={s.seed}{err} | "
-                  f"done {self.done}, failed {self.failed}, remaining {remaining}, "
+                  f"done {self.done}, not ok {self.not_ok}, remaining {remaining}, "
                   f"elapsed {elapsed:.0f} s, eta {eta:.0f} s", file=self.stream, flush=True)
 
     def close(self) -> None:

@@ -205,3 +205,21 @@ learners = ["{M}:PolynomialInTime"]
     with pytest.raises(ValueError, match="cannot be imported"):
         run_grid(grid, tmp_path / "s.sqlite", function="harness.bad_learners:no_such_function")
     assert not (tmp_path / "s.sqlite").exists()
+
+
+def test_progress_lines_count_diverged_cells_as_not_ok_not_as_failed():
+    import io
+
+    from suite.cell import CellOutcome, CellSpec
+    from suite.executors import CellResult
+    from suite.runner import _Progress
+
+    out = io.StringIO()
+    p = _Progress(3, "lines", stream=out)
+    spec = CellSpec("lorenz63", "forecast", "persistence")
+    for status in ("ok", "diverged", "not_applicable"):
+        p.update(CellResult("k", spec, CellOutcome(status, error="" if status == "ok" else "why"), None, "t", 1))
+    lines = out.getvalue().splitlines()
+    assert [ln.split()[1] for ln in lines] == ["ok", "diverged", "not_applicable"]
+    assert "not ok 1, remaining 1" in lines[1] and "not ok 1, remaining 0" in lines[2]
+    assert "failed" not in out.getvalue()
