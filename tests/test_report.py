@@ -249,3 +249,19 @@ def test_fourteen_learners_get_fourteen_distinguishable_scatter_styles():
     styles = [series_style(i) for i in range(14)]
     assert len({(s["facecolor"], s["edgecolor"]) for s in styles}) == 14
     assert len({(s["color"], s["linestyle"]) for s in styles}) == 14  # and the lines of the curve figures
+
+
+def test_the_standard_studys_data_settings_get_distinct_markers():
+    # the work-precision figure of a system draws one marker per data setting (fraction, noise, physics)
+    from pathlib import Path
+
+    from suite.grid import load_grid
+    from suite.report.style import MARKERS
+
+    grid = load_grid(Path(__file__).resolve().parents[1] / "suite" / "grids" / "standard.toml")
+    per_system = {}
+    for c in grid.cells():
+        if c.task == "forecast":
+            per_system.setdefault(c.system, set()).add((c.fraction, c.noise, c.physics))
+    most = max(len(v) for v in per_system.values())
+    assert most >= 9 and len(set(MARKERS)) == len(MARKERS) >= most

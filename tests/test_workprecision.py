@@ -67,3 +67,24 @@ def test_a_rung_over_the_cost_cap_stops_the_method_and_is_never_used():
     assert np.isinf(dop["error"].iloc[1]) and (df[df["method"] == "rk4"]["status"] == "success").all()
     sol = solvers.solve_scipy(system.rhs(), (0.0, 1.0), starts[0], system.params, rtol=1e-10, max_nfev=400)
     assert not sol.success and "max_nfev" in sol.message and sol.nfev == 0
+
+
+def test_best_time_keeps_the_first_result_and_the_shortest_of_repeated_short_calls():
+    import time
+
+    from suite.workprecision import best_time
+
+    delays = iter([0.03, 0.002, 0.02, 0.01, 0.004, 0.001])
+    calls = []
+
+    def call():
+        calls.append(1)
+        time.sleep(next(delays))
+        return len(calls)
+
+    out, sec = best_time(call, short=0.05, repeats=5)
+    assert out == 1 and len(calls) == 5  # short: repeated up to 5 calls, first result kept
+    assert 0.002 <= sec < 0.01  # the minimum, the 2 ms call (sleep never returns early)
+    calls.clear()
+    out, sec = best_time(lambda: calls.append(1) or time.sleep(0.06) or "slow", short=0.05)
+    assert out == "slow" and sec >= 0.06 and len(calls) == 1  # a long call is timed once

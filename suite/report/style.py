@@ -23,7 +23,7 @@ __all__ = ["PALETTE", "MARKERS", "LINESTYLES", "series_style", "new_figure", "TH
 
 #: Okabe–Ito colours (black last: it is kept for solvers and reference lines)
 PALETTE = ("#E69F00", "#56B4E9", "#009E73", "#0072B2", "#D55E00", "#CC79A7", "#F0E442", "#000000")
-MARKERS = ("o", "s", "^", "D", "v", "P", "X", "*")
+MARKERS = ("o", "s", "^", "D", "v", "P", "X", "*", "h", "<", ">", "p")  # 12: the settings of a study fit
 LINESTYLES = ("-", "--", "-.", ":")
 THRESHOLD_COLOUR = "#555555"
 
