@@ -278,8 +278,9 @@ def _summary(store_path, now, version, cells, tables, tests, lad, speed, notes_l
     md += ["How to read the tables: the headline metric is the median over seeds with the inter-quartile "
            "range in brackets, and a 95 % bootstrap confidence interval of the median (over seeds; for the "
            "valid prediction time over seeds × start states). Times are medians over seeds: training in "
-           "seconds, inference in seconds per trajectory per Lyapunov time (forecast: timed on a second "
-           "rollout, so compilation is excluded as for the solvers). Speed-up at equal accuracy "
+           "seconds, inference in seconds per trajectory per Lyapunov time (forecast: timed after a first "
+           "rollout, so compilation is excluded as for the solvers; a call under 50 ms: the shortest of 5). "
+           "Speed-up at equal accuracy "
            "(forecast only): the time the cheapest solver rung that is at least as accurate (time-averaged "
            f"normalised error over the same horizon) needs, divided by the learner's inference time; "
            f"\"incl. training\" shares the training time over {queries} queries. Bold: best in its column.", ""]
