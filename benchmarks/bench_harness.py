@@ -145,7 +145,8 @@ def main(quick: bool, cells: int | None, heavy_cells: int | None, configs, out: 
              "Non-trivial cell: options " + repr(NONTRIVIAL_OPTIONS) + ", cache off. "
              "overhead_cpu_s_per_cell: the same from CPU seconds of this process and its reaped children (robust to "
              "other jobs' load; local executor only, Dask's workers are not reaped by this process). "
-             f"Dask 2 vs 1 worker: {speed:.2f}x; the local executor on the same cells: {local_speed:.2f}x. With the load average above the core count, a "
+             f"Dask 2 vs 1 worker: {speed:.2f}x; the local executor on the same cells: {local_speed:.2f}x. "
+             "With the load average above the core count, a "
              "second worker gets only part of a second core.")
     write_results(out, {"machine": info, "targets": targets}, table, notes, quick)
 

@@ -8,7 +8,8 @@
    small budget for the iterative learners (``Budget(max_iterations=20,
    max_seconds=cap)``). The echo state network counts its iterations as
    reservoir steps, i.e. training samples, so it gets only the time cap:
-   with 20 iterations it would fit 20 samples whatever the set's size. A learner whose fit takes longer than the cap is not
+   with 20 iterations it would fit 20 samples whatever the set's size. A
+   learner whose fit takes longer than the cap is not
    tried on larger sets. A learner that cannot work without equations
    (``NotApplicableError`` on plain data) is listed as such.
 

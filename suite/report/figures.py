@@ -52,7 +52,8 @@ def error_vs_horizon(curves: pd.DataFrame, system: str, *, threshold: float = 0.
         w = w.where(w > 0)  # an exact zero (the start state itself) has no place on a log axis
         st = series_style(i)
         ax.plot(h, w.median(axis=1), color=st["color"], linestyle=st["linestyle"], marker=st["marker"],
-                markerfacecolor=st["facecolor"], markersize=3, label=f"{name} ({w.shape[1]} seed{'s' if w.shape[1] != 1 else ''})")
+                markerfacecolor=st["facecolor"], markersize=3,
+                label=f"{name} ({w.shape[1]} seed{'s' if w.shape[1] != 1 else ''})")
         if w.shape[1] > 1:
             ax.fill_between(h, w.min(axis=1), w.max(axis=1), color=st["color"], alpha=0.2, linewidth=0)
     ax.axhline(threshold, color=THRESHOLD_COLOUR, linestyle=":", linewidth=1.2)
@@ -149,7 +150,8 @@ def work_precision(ladder: pd.DataFrame, learners: pd.DataFrame, title: str, *, 
                 continue
             ax.scatter(h["nrmse_mean"], h["inference_seconds_per_lyapunov_time"], facecolors=st["facecolor"],
                        marker=MARKERS[j % len(MARKERS)] if many else st["marker"], s=45,
-                       edgecolors=st["edgecolor"], linewidths=0.5 if st["facecolor"] != "white" else 1.2, zorder=3, label=f"learner {name}" if j == 0 or not many else None)
+                       edgecolors=st["edgecolor"], linewidths=0.5 if st["facecolor"] != "white" else 1.2,
+                       zorder=3, label=f"learner {name}" if j == 0 or not many else None)
     if many:  # markers say the data setting, colours the learner
         for j, setting in enumerate(settings):
             ax.scatter([], [], color="white", edgecolors="black", marker=MARKERS[j % len(MARKERS)], s=45,
