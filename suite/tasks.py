@@ -227,8 +227,8 @@ class TaskSetup:
 
     ``evaluate(learner) -> (rows, cost, info)``; cost holds
     ``inference_seconds`` and ``inference_seconds_per_lyapunov_time`` where
-    the task runs inference (forecast: timed on a second rollout, after the
-    first has paid compilation).
+    the task runs inference (forecast: timed after a first rollout has paid
+    compilation, with :func:`suite.workprecision.best_time`).
     """
 
     data: object

@@ -67,7 +67,7 @@ def best_time(call, *, short: float = 0.05, repeats: int = 5):
 
     A call under ``short`` seconds is repeated and the minimum kept (the
     usual practice of :mod:`timeit`): timed once, a millisecond solve varied
-    by up to ±50 % between two reports of the same store on an idle machine,
+    by up to 1.7x between two reports of the same store on an idle machine,
     enough to move a speed-up by 1.5x. Longer calls are timed once; their
     relative noise is small and repeating them would cost. The result is the
     first call's.
